@@ -1,0 +1,3 @@
+"""Python client for the knotwork collinearity-diagnostics service."""
+
+__all__: list[str] = []

@@ -1,0 +1,1 @@
+"""The numerical core of knotwork: pure numpy/scipy, no web imports."""

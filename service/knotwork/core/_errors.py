@@ -1,0 +1,92 @@
+"""Exceptions raised by the numerical core.
+
+Every exception the core raises for bad input subclasses :class:`ValueError`, so a plain
+``except ValueError`` still catches it, and carries a list of :class:`Problem` entries that
+say *where* (a JSON pointer relative to the input document, such as ``/columns/GNP`` or
+``/matrix/2/3``) and *why*. The HTTP layer maps these, in one place, to problem+json.
+
+Hierarchy::
+
+    KnotworkError (ValueError)
+    ├── InputError            the input cannot be used as given
+    │   ├── MissingValuesError    missing values under ``missing="reject"``
+    │   ├── MatrixError           not a valid correlation or covariance matrix
+    │   └── TooFewDataError       too few observations or predictors
+    └── OptionError           an option is unknown, out of range or inconsistent with the input
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True, slots=True)
+class Problem:
+    """One thing wrong with the input.
+
+    Attributes
+    ----------
+    pointer
+        JSON pointer (RFC 6901) relative to the input or options document, e.g. ``/n`` or
+        ``/columns/floor_area``; the HTTP layer prefixes ``/input`` or ``/options``.
+    reason
+        What was expected, what came, and how to fix it, in one sentence.
+    """
+
+    pointer: str
+    reason: str
+
+
+class KnotworkError(ValueError):
+    """Base class of every error the core raises for bad input or options."""
+
+    #: Stable slug of this kind of error; the HTTP layer builds the problem ``type`` from it.
+    kind: str = "invalid-input"
+    #: Which document the pointers refer to: ``"input"`` or ``"options"``.
+    scope: str = "input"
+
+    def __init__(self, message: str, problems: list[Problem] | tuple[Problem, ...] = ()) -> None:
+        super().__init__(message)
+        self.message = message
+        self.problems: tuple[Problem, ...] = tuple(problems)
+
+    @classmethod
+    def at(cls, pointer: str, reason: str) -> KnotworkError:
+        """Build an error with a single problem whose reason is also the message."""
+        return cls(reason, [Problem(pointer, reason)])
+
+
+class InputError(KnotworkError):
+    """The input cannot be used as given."""
+
+    kind = "invalid-input"
+
+
+class MissingValuesError(InputError):
+    """Missing values were found and the missing-value policy is ``reject``."""
+
+    kind = "missing-values"
+
+
+class MatrixError(InputError):
+    """A matrix is not a valid correlation or covariance matrix."""
+
+    kind = "invalid-matrix"
+
+
+class TooFewDataError(InputError):
+    """Too few observations or predictors for the diagnostics to exist."""
+
+    kind = "too-few-data"
+
+
+class OptionError(KnotworkError):
+    """An option is unknown, out of range, or does not fit the input."""
+
+    kind = "invalid-option"
+    scope = "options"
+
+
+def pointer_escape(token: str) -> str:
+    """Escape one reference token for a JSON pointer (RFC 6901, section 3)."""
+    return token.replace("~", "~0").replace("/", "~1")
