@@ -1,0 +1,437 @@
+"""Options, the assessment record, and :func:`assess`: every diagnostic from one summary."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Collection
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ._conditioning import Conditioning, condition_diagnostics
+from ._dependencies import Dependency, DependencyReport, Spectrum, find_dependencies
+from ._errors import OptionError, Problem
+from ._inflation import TermInflation, VariableInflation, generalized_inflation, variance_inflation
+from ._notices import CAUTIONS, Notice, notice
+from ._significance import Tests, collinearity_tests
+from ._summary import RepairReport, Summary
+
+#: Every section a caller can ask for; ``variables`` and ``dependencies`` are always computed.
+SECTIONS = (
+    "variables",
+    "terms",
+    "conditioning",
+    "tests",
+    "dependencies",
+    "removal",
+    "ridge",
+    "components",
+    "comparison",
+)
+COMPONENT_RULES = ("condition_index", "cumulative")
+
+#: Sample size beyond which the significance tests reject at any trace of collinearity; the
+#: figure is a round number for the warning, not a published cut-off.
+_LARGE_N = 10_000
+
+
+@dataclass(frozen=True, slots=True)
+class Options:
+    """What to compute and the rules of thumb to judge it by.
+
+    Attributes
+    ----------
+    threshold
+        VIF above which a predictor counts as redundant (common practice: 5 or 10).
+    protect
+        Predictors or terms never proposed for removal.
+    intercept
+        True (default): the model has an intercept, VIFs are centred. False: regression through
+        the origin, VIFs from the uncentred cosine matrix (needs rows or moments).
+    sections
+        Which sections to compute (None: all).
+    ridge_grid
+        Values of k on the correlation scale for the ridge trace (None: a default grid).
+    components_rule
+        ``"condition_index"`` (drop components whose index exceeds ``components_limit``,
+        default 30) or ``"cumulative"`` (keep the fewest explaining ``components_limit`` of
+        the variance, default 0.95).
+    components_limit
+        The rule's limit (None: its default).
+    index_threshold, proportion_threshold
+        A tangle is a component with condition index above ``index_threshold`` and two or more
+        variance-decomposition proportions above ``proportion_threshold`` (common practice
+        after Belsley, Kuh & Welsch: 30 and 0.5).
+    """
+
+    threshold: float = 5.0
+    protect: tuple[str, ...] = ()
+    intercept: bool = True
+    sections: Collection[str] | None = None
+    ridge_grid: tuple[float, ...] | None = None
+    components_rule: str = "condition_index"
+    components_limit: float | None = None
+    index_threshold: float = 30.0
+    proportion_threshold: float = 0.5
+
+    def wants(self, section: str) -> bool:
+        return self.sections is None or section in self.sections
+
+
+@dataclass(frozen=True, slots=True)
+class Assessment:
+    """The full collinearity assessment of one design.
+
+    Attributes
+    ----------
+    input_kind
+        ``"table"``, ``"correlation"`` or ``"moments"``.
+    n
+        Observations (or sum of weights) behind the summary.
+    p
+        Number of predictors (intercept not counted; categorical variables expanded).
+    response
+        The response's name, if one was given.
+    intercept
+        Whether the diagnostics assume a model with an intercept (centred) or not.
+    threshold
+        The VIF threshold the flags use (echoed).
+    variables
+        Per predictor: VIF, tolerance, R_j^2, standard-error inflation, flags.
+    terms
+        Per multi-column term: GVIF and GVIF^(1/(2 df)).
+    conditioning
+        Condition indices, variance-decomposition proportions and tangled sets.
+    tests
+        Determinant of R, Farrar-Glauber chi-square, per-variable F, partial correlations.
+    dependencies
+        Exact linear relations among the predictors, by name.
+    removal
+        Proposed removal sequence.
+    ridge
+        Ridge trace and choices of k.
+    components
+        Principal components and, with a response, principal-component regression.
+    comparison
+        Remedies side by side.
+    repair
+        What the nearest-matrix repair did, when it was used.
+    warnings
+        Numerical and input warnings, each with a stable code.
+    cautions
+        How to read these numbers: thresholds are rules of thumb; regulated models follow
+        local rules and qualified review.
+    """
+
+    input_kind: str
+    n: float
+    p: int
+    response: str | None
+    intercept: bool
+    threshold: float
+    variables: tuple[VariableInflation, ...]
+    terms: tuple[TermInflation, ...]
+    conditioning: Conditioning | None
+    tests: Tests | None
+    dependencies: tuple[Dependency, ...]
+    removal: object | None = None
+    ridge: object | None = None
+    components: object | None = None
+    comparison: object | None = None
+    repair: RepairReport | None = None
+    warnings: tuple[Notice, ...] = ()
+    cautions: tuple[str, ...] = field(default=CAUTIONS)
+
+
+def check_options(options: Options, summary: Summary) -> None:
+    """Validate options against the summary, naming the option at fault."""
+    problems: list[Problem] = []
+    t = options.threshold
+    if not isinstance(t, int | float) or isinstance(t, bool) or not math.isfinite(t) or t <= 1:
+        problems.append(
+            Problem("/threshold", "threshold must be a finite number above 1 (VIF >= 1 always)")
+        )
+    known = set(summary.names) | {term.name for term in summary.terms}
+    for i, name in enumerate(options.protect):
+        if name not in known:
+            problems.append(
+                Problem(f"/protect/{i}", f"protect names {name!r}, which is not a predictor")
+            )
+    if options.sections is not None:
+        for i, s in enumerate(options.sections):
+            if s not in SECTIONS:
+                problems.append(
+                    Problem(f"/sections/{i}", f"unknown section {s!r}; choose from {SECTIONS}")
+                )
+    if options.ridge_grid is not None:
+        if len(options.ridge_grid) == 0:
+            problems.append(Problem("/ridge/grid", "the grid needs at least one value of k"))
+        for i, k in enumerate(options.ridge_grid):
+            if not math.isfinite(k) or k < 0:
+                problems.append(Problem(f"/ridge/grid/{i}", "k must be a finite number >= 0"))
+    if options.components_rule not in COMPONENT_RULES:
+        problems.append(
+            Problem(
+                "/components/rule",
+                f"unknown rule {options.components_rule!r}; choose from {COMPONENT_RULES}",
+            )
+        )
+    lim = options.components_limit
+    if lim is not None:
+        if options.components_rule == "cumulative" and not (0 < lim <= 1):
+            problems.append(Problem("/components/limit", "a cumulative share must lie in (0, 1]"))
+        elif options.components_rule == "condition_index" and not (math.isfinite(lim) and lim >= 1):
+            problems.append(
+                Problem("/components/limit", "a condition-index limit must be a number >= 1")
+            )
+    if not options.intercept and not summary.has_moments:
+        problems.append(
+            Problem(
+                "/intercept",
+                "intercept=false (uncentred VIF) needs rows or moments; a correlation matrix "
+                "has lost the means",
+            )
+        )
+    if problems:
+        raise OptionError(problems[0].reason, problems)
+
+
+def assess(summary: Summary, options: Options | None = None) -> Assessment:
+    """Compute every requested diagnostic from a summary.
+
+    Parameters
+    ----------
+    summary
+        The design's summary (from rows, a correlation matrix or moments).
+    options
+        What to compute and the thresholds (defaults: VIF 5, intercept, all sections).
+
+    Returns
+    -------
+    Assessment
+
+    Raises
+    ------
+    TooFewDataError, InputError
+        Too few observations for the predictors, or a constant variable (pointer into the input).
+    OptionError
+        An option is out of range or does not fit the input (pointer into the options).
+
+    Notes
+    -----
+    With an intercept every diagnostic works on the predictors' correlation matrix R (centred);
+    without one, on the cosine matrix of the uncentred columns. The eigen-decomposition of that
+    matrix is computed once and shared by the dependency finder, the tests, ridge and the
+    principal components. Conditioning uses the scaled uncentred design with the intercept
+    column (Belsley, Kuh & Welsch) when moments are known, and R otherwise; ``basis`` says which.
+    """
+    options = options or Options()
+    summary.check()
+    check_options(options, summary)
+    p = summary.p
+    names = summary.names
+    notes: list[Notice] = list(summary.notes)
+    if options.intercept:
+        matrix = summary.R
+        r_xy = summary.r_xy
+    else:
+        cos = summary.cosine()
+        assert cos is not None
+        matrix = cos[:p, :p]
+        r_xy = cos[:p, p] if summary.response is not None else None
+    spectrum = Spectrum.of(matrix)
+    deps: DependencyReport = find_dependencies(
+        spectrum,
+        names,
+        sds=summary.sds if options.intercept else None,
+        means=summary.predictor_means if options.intercept else None,
+    )
+    if deps.relations:
+        aliased = [names[j] for j in np.flatnonzero(deps.involved)]
+        notes.append(
+            notice(
+                "exact_dependency",
+                f"{len(deps.relations)} exact linear relation(s) among "
+                f"{', '.join(aliased)}: their VIFs are infinite (reported as null, aliased)",
+            )
+        )
+    elif spectrum.values[-1] < 1e-8 * spectrum.values[0]:
+        notes.append(
+            notice(
+                "near_singular",
+                f"the smallest eigenvalue of the correlation matrix is {spectrum.values[-1]:.3g}: "
+                "near-singular, results are sensitive to small changes in the data",
+            )
+        )
+    variables = variance_inflation(matrix, names, threshold=options.threshold, dependencies=deps)
+    terms: tuple[TermInflation, ...] = ()
+    if options.wants("terms") and summary.terms:
+        terms = generalized_inflation(
+            matrix,
+            names,
+            summary.term_indices(),
+            threshold=options.threshold,
+            dependencies=deps,
+        )
+    high = [v.name for v in variables if v.above_threshold and not v.aliased]
+    if high:
+        notes.append(
+            notice(
+                "above_threshold",
+                f"{len(high)} predictor(s) have VIF above {options.threshold:g}: "
+                + ", ".join(high),
+            )
+        )
+
+    conditioning = None
+    if options.wants("conditioning"):
+        conditioning = _conditioning(summary, options, matrix, spectrum, notes)
+
+    tests = None
+    if options.wants("tests"):
+        tests = collinearity_tests(
+            matrix, summary.n, names, [v.vif for v in variables], spectrum=spectrum
+        )
+        if summary.n > _LARGE_N:
+            notes.append(
+                notice(
+                    "large_sample_tests",
+                    f"with n = {summary.n:g} the Farrar-Glauber tests reject at trivial "
+                    "collinearity; read the VIFs and condition indices instead",
+                )
+            )
+
+    removal = ridge = components = comparison = None
+    wants_comparison = options.wants("comparison")
+    if options.wants("removal") or wants_comparison:
+        from ._removal import removal_sequence
+
+        removal = removal_sequence(
+            matrix,
+            names,
+            threshold=options.threshold,
+            protect=options.protect,
+            terms=summary.term_indices(),
+            dependencies=deps,
+            r_xy=r_xy,
+        )
+    sds = summary.sds if options.intercept else None
+    if options.wants("ridge") or wants_comparison:
+        from ._ridge import ridge_analysis
+
+        ridge = ridge_analysis(
+            matrix,
+            names,
+            n=summary.n,
+            threshold=options.threshold,
+            grid=options.ridge_grid,
+            r_xy=r_xy,
+            sds=sds,
+            response_sd=summary.response_sd if options.intercept else None,
+            means=summary.predictor_means if options.intercept else None,
+            response_mean=summary.response_mean if options.intercept else None,
+            intercept=options.intercept,
+            spectrum=spectrum,
+        )
+    if options.wants("components") or wants_comparison:
+        from ._components import principal_components
+
+        components = principal_components(
+            matrix,
+            names,
+            n=summary.n,
+            rule=options.components_rule,
+            limit=options.components_limit,
+            r_xy=r_xy,
+            sds=sds,
+            response_sd=summary.response_sd if options.intercept else None,
+            intercept=options.intercept,
+            spectrum=spectrum,
+        )
+    if wants_comparison:
+        from ._remedies import compare_remedies
+
+        comparison = compare_remedies(
+            matrix,
+            names,
+            n=summary.n,
+            threshold=options.threshold,
+            removal=removal,
+            ridge=ridge,
+            components=components,
+            r_xy=r_xy,
+            intercept=options.intercept,
+        )
+    return Assessment(
+        input_kind=summary.input_kind,
+        n=float(summary.n),
+        p=p,
+        response=summary.response,
+        intercept=options.intercept,
+        threshold=float(options.threshold),
+        variables=variables,
+        terms=terms,
+        conditioning=conditioning,
+        tests=tests,
+        dependencies=deps.relations,
+        removal=removal if options.wants("removal") else None,
+        ridge=ridge if options.wants("ridge") else None,
+        components=components if options.wants("components") else None,
+        comparison=comparison,
+        repair=summary.repair,
+        warnings=tuple(dict.fromkeys(notes)),
+    )
+
+
+def _conditioning(
+    summary: Summary,
+    options: Options,
+    matrix: np.ndarray,
+    spectrum: Spectrum,
+    notes: list[Notice],
+) -> Conditioning:
+    cross = summary.design_crossproducts(options.intercept)
+    if cross is not None:
+        g, cnames = cross
+        basis = "scaled_with_intercept" if options.intercept else "scaled_uncentred"
+        result = condition_diagnostics(
+            g,
+            cnames,
+            basis,
+            index_threshold=options.index_threshold,
+            proportion_threshold=options.proportion_threshold,
+        )
+    else:
+        result = condition_diagnostics(
+            matrix,
+            summary.names,
+            "correlation",
+            index_threshold=options.index_threshold,
+            proportion_threshold=options.proportion_threshold,
+            spectrum=spectrum,
+        )
+        notes.append(
+            notice(
+                "correlation_basis",
+                "only correlations are known, so conditioning uses the correlation matrix "
+                "(centred): near-dependence involving the intercept cannot be seen",
+            )
+        )
+    cn = result.condition_number
+    if cn is not None and cn > 100:
+        notes.append(
+            notice(
+                "severe_conditioning",
+                f"condition number {cn:.4g} on the {result.basis} basis exceeds 100 "
+                "(severe, by the common reading of Belsley, Kuh & Welsch)",
+            )
+        )
+    elif cn is not None and cn > options.index_threshold:
+        notes.append(
+            notice(
+                "moderate_conditioning",
+                f"condition number {cn:.4g} on the {result.basis} basis exceeds "
+                f"{options.index_threshold:g} (moderate to strong near-dependence)",
+            )
+        )
+    return result

@@ -1,0 +1,162 @@
+"""Rows, correlation and moments give the same answer; partial moments merge exactly."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+from knotwork.core import (
+    Options,
+    assess,
+    from_correlation,
+    from_frame,
+    from_moments,
+    from_table,
+    merge_moments,
+)
+
+CORE = Options(sections=["variables", "tests", "dependencies"])
+
+
+def _vifs(summary) -> np.ndarray:
+    return np.array([v.vif for v in assess(summary, CORE).variables])
+
+
+def test_rows_correlation_and_moments_agree_on_longley(longley: pd.DataFrame) -> None:
+    # Longley (statsmodels.datasets.longley): the three ways in must agree to 1e-9.
+    exog = longley.drop(columns="TOTEMP")
+    rows = from_frame(longley, response="TOTEMP")
+    corr = from_correlation(
+        list(exog.columns),
+        exog.corr().to_numpy(),  # pandas' Pearson correlation, an outside computation
+        len(exog),
+        response=("TOTEMP", exog.corrwith(longley["TOTEMP"]).to_numpy()),
+    )
+    mom = from_moments(
+        list(longley.columns),
+        len(longley),
+        longley.mean().to_numpy(),
+        longley.cov().to_numpy(),  # pandas' sample covariance (denominator n - 1)
+        response="TOTEMP",
+    )
+    base = _vifs(rows)
+    assert_allclose(_vifs(corr), base, rtol=1e-9)
+    assert_allclose(_vifs(mom), base, rtol=1e-9)
+    assert_allclose(rows.r_xy, corr.r_xy, rtol=1e-12)
+    a, b = assess(rows, CORE).tests, assess(mom, CORE).tests
+    assert_allclose(a.farrar_glauber.chi_square, b.farrar_glauber.chi_square, rtol=1e-9)
+
+
+def test_merged_parts_equal_the_whole(longley: pd.DataFrame) -> None:
+    whole = from_frame(longley)
+    parts = [longley.iloc[:5], longley.iloc[5:6], longley.iloc[6:11], longley.iloc[11:]]
+    summaries = []
+    for part in parts:
+        x = part.to_numpy()
+        centred = x - x.mean(axis=0)
+        cov = centred.T @ centred / max(len(x) - 1, 1)  # a one-row part has zero covariance
+        summaries.append((len(x), x.mean(axis=0), cov))
+    merged = merge_moments(summaries, list(longley.columns))
+    assert merged.n == whole.n
+    assert_allclose(merged.means, whole.means, rtol=1e-14)
+    assert_allclose(merged.comoments, whole.comoments, rtol=1e-11)
+    assert_allclose(_vifs(merged), _vifs(whole), rtol=1e-9)
+    # Summary.merge gives the same, in any grouping.
+    halves = from_frame(longley.iloc[:8]).merge(from_frame(longley.iloc[8:]))
+    assert_allclose(_vifs(halves), _vifs(whole), rtol=1e-9)
+
+
+def test_merge_is_stable_when_means_dwarf_spreads(longley: pd.DataFrame) -> None:
+    # Longley shifted by 1e6: raw sums of squares would lose every digit of YEAR's spread.
+    shifted = longley + 1e6
+    whole = _vifs(from_frame(longley))
+    merged = from_frame(shifted.iloc[:7]).merge(from_frame(shifted.iloc[7:]))
+    assert_allclose(_vifs(merged), whole, rtol=1e-7)
+    assert_allclose(_vifs(from_frame(shifted)), whole, rtol=1e-7)
+
+
+def test_integer_weights_equal_repeated_rows(rng: np.random.Generator) -> None:
+    x = rng.normal(size=(40, 4))
+    x[:, 3] += x[:, 0] + 0.5 * x[:, 1]
+    w = rng.integers(1, 4, size=40).astype(float)
+    cols = {f"x{j}": x[:, j] for j in range(4)}
+    weighted = from_table({**cols, "w": w}, weights="w")
+    repeated = from_table({k: np.repeat(v, w.astype(int)) for k, v in cols.items()})
+    assert weighted.n == repeated.n == w.sum()
+    assert_allclose(_vifs(weighted), _vifs(repeated), rtol=1e-12)
+
+
+def test_weighted_vif_equals_statsmodels_wls(rng: np.random.Generator) -> None:
+    # Source: statsmodels WLS of x_j on the others with a constant; weighted R^2.
+    import statsmodels.api as sm
+
+    x = rng.normal(size=(60, 3))
+    x[:, 2] += 0.8 * x[:, 0]
+    w = rng.uniform(0.2, 3.0, size=60)
+    s = from_table({"a": x[:, 0], "b": x[:, 1], "c": x[:, 2], "w": w}, weights="w")
+    expected = []
+    for j in range(3):
+        others = sm.add_constant(np.delete(x, j, axis=1))
+        r2 = sm.WLS(x[:, j], others, weights=w).fit().rsquared
+        expected.append(1 / (1 - r2))
+    assert_allclose(_vifs(s), expected, rtol=1e-10)
+
+
+def test_pairwise_correlations_equal_pandas(rng: np.random.Generator) -> None:
+    # Source: pandas DataFrame.corr(), which uses pairwise-complete observations.
+    x = rng.normal(size=(200, 4))
+    x[:, 1] += x[:, 0]
+    x[rng.random(size=x.shape) < 0.1] = np.nan
+    frame = pd.DataFrame(x, columns=list("abcd"))
+    s = from_frame(frame, missing="pairwise")
+    assert_allclose(s.R, frame.corr().to_numpy(), rtol=1e-12)
+    present = frame.notna().astype(int)
+    assert s.n == (present.T @ present).to_numpy().min()
+    assert not s.has_moments
+    assert "pairwise_deletion" in {n.code for n in s.notes}
+
+
+def test_drop_rows_equals_complete_cases(rng: np.random.Generator) -> None:
+    x = rng.normal(size=(100, 3))
+    x[3, 0] = x[10, 2] = np.nan
+    frame = pd.DataFrame(x, columns=list("abc"))
+    dropped = from_frame(frame, missing="drop_rows")
+    complete = from_frame(frame.dropna())
+    assert dropped.rows == 98
+    assert_allclose(_vifs(dropped), _vifs(complete), rtol=1e-13)
+    assert "rows_dropped" in {n.code for n in dropped.notes}
+
+
+def test_table_and_frame_agree_and_categorical_is_expanded(rng: np.random.Generator) -> None:
+    n = 90
+    region = rng.choice(["north", "south", "west"], size=n)
+    x = rng.normal(size=n) + (region == "south")
+    frame = pd.DataFrame({"x": x, "z": rng.normal(size=n), "region": region})
+    s = from_frame(frame)
+    assert s.names == ("x", "z", "region[south]", "region[west]")
+    assert [(t.name, t.columns) for t in s.terms] == [("region", ("region[south]", "region[west]"))]
+    t = from_table({"x": x, "z": frame["z"].to_numpy()}, categorical={"region": list(region)})
+    assert_allclose(t.correlation, s.correlation, rtol=1e-14)
+
+
+def test_response_is_excluded_from_predictors(longley: pd.DataFrame) -> None:
+    s = from_frame(longley, response="TOTEMP")
+    assert "TOTEMP" not in s.names
+    assert s.response == "TOTEMP"
+    assert s.p == 6
+    assert_allclose(s.response_mean, longley["TOTEMP"].mean(), rtol=1e-14)
+    assert_allclose(s.response_sd, longley["TOTEMP"].std(), rtol=1e-12)
+
+
+@pytest.mark.parametrize("block", [1, 7, 1 << 20])
+def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None:
+    import knotwork.core._summary as summary_module
+
+    x = rng.normal(size=(50, 3)) * [1, 1e3, 1e-3] + [0, 1e6, 5]
+    ref = from_table({f"c{j}": x[:, j] for j in range(3)})
+    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", block * 8 * 3)
+    got = from_table({f"c{j}": x[:, j] for j in range(3)})
+    assert_allclose(got.comoments, ref.comoments, rtol=1e-10)
+    assert_allclose(got.means, ref.means, rtol=1e-13, atol=1e-15)
