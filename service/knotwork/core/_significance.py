@@ -117,6 +117,11 @@ def _whole(x: float) -> float:
     return int(x) if float(x).is_integer() else float(x)
 
 
+def _rows_with_none(a: np.ndarray) -> tuple[tuple[float | None, ...], ...]:
+    """A matrix as nested tuples of floats, with None where the value is NaN (undefined)."""
+    return tuple(tuple(None if v != v else v for v in row) for row in a.tolist())
+
+
 def _log_det_cholesky(matrix: np.ndarray) -> tuple[float | None, np.ndarray | None]:
     """ln det and Cholesky factor of a positive definite matrix; (None, None) otherwise."""
     try:
@@ -250,15 +255,24 @@ def collinearity_tests(
 
     df1 = p - 1
     df2 = n - p
-    variable_f = []
-    for name, v in zip(names, vif, strict=True):
-        f: float | None = None
-        f_p: float | None = None
-        if v is not None and df1 > 0 and df2 > 0:
-            # VIF >= 1 in exact arithmetic; rounding can leave 1 - 1e-16.
-            f = max(0.0, (float(v) - 1.0) * df2 / df1)
-            f_p = float(scipy.stats.f.sf(f, df1, df2))
-        variable_f.append(VariableF(name=str(name), f=f, df1=df1, df2=_whole(df2), p_value=f_p))
+    finite = np.array([v is not None for v in vif], dtype=bool)
+    f_stat = np.full(p, np.nan)
+    f_p = np.full(p, np.nan)
+    if df1 > 0 and df2 > 0 and finite.any():
+        # VIF >= 1 in exact arithmetic; rounding can leave 1 - 1e-16.
+        values = np.array([float(v) for v in vif if v is not None])
+        f_stat[finite] = np.maximum(0.0, (values - 1.0) * df2 / df1)
+        f_p[finite] = scipy.stats.f.sf(f_stat[finite], df1, df2)
+    variable_f = [
+        VariableF(
+            name=str(name),
+            f=None if np.isnan(f_stat[j]) else float(f_stat[j]),
+            df1=df1,
+            df2=_whole(df2),
+            p_value=None if np.isnan(f_p[j]) else float(f_p[j]),
+        )
+        for j, name in enumerate(names)
+    ]
     if any(v is None for v in vif):
         notes.append("The F statistic of an aliased variable is infinite and is not reported.")
 
@@ -296,33 +310,19 @@ def collinearity_tests(
         if defined[i]:
             partial[i, i] = 1.0
 
-    corr_rows = []
-    t_rows = []
-    p_rows = []
-    for i in range(p):
-        corr_row: list[float | None] = []
-        t_row: list[float | None] = []
-        p_row: list[float | None] = []
-        for j in range(p):
-            value = partial[i, j]
-            if np.isnan(value):
-                corr_row.append(None)
-                t_row.append(None)
-                p_row.append(None)
-                continue
-            # The formula is symmetric; averaging removes rounding asymmetry of the inverse.
-            value = float(np.clip(0.5 * (value + partial[j, i]), -1.0, 1.0))
-            corr_row.append(value)
-            if i == j or abs(value) >= 1.0 or partial_df <= 0:
-                t_row.append(None)
-                p_row.append(None)
-                continue
-            t = value * math.sqrt(partial_df) / math.sqrt(1.0 - value * value)
-            t_row.append(float(t))
-            p_row.append(float(2.0 * scipy.stats.t.sf(abs(t), partial_df)))
-        corr_rows.append(tuple(corr_row))
-        t_rows.append(tuple(t_row))
-        p_rows.append(tuple(p_row))
+    # The formula is symmetric; averaging removes rounding asymmetry of the inverse.
+    partial = np.clip(0.5 * (partial + partial.T), -1.0, 1.0)
+    off = ~np.eye(p, dtype=bool) & ~np.isnan(partial) & (np.abs(partial) < 1.0)
+    t_stat = np.full((p, p), np.nan)
+    p_val = np.full((p, p), np.nan)
+    if partial_df > 0 and off.any():
+        r_off = partial[off]
+        t_stat[off] = r_off * math.sqrt(partial_df) / np.sqrt(1.0 - r_off * r_off)
+        # One vectorized call: the survival function, never 1 - cdf.
+        p_val[off] = 2.0 * scipy.stats.t.sf(np.abs(t_stat[off]), partial_df)
+    corr_rows = _rows_with_none(partial)
+    t_rows = _rows_with_none(t_stat)
+    p_rows = _rows_with_none(p_val)
 
     return Tests(
         determinant=float(determinant),
