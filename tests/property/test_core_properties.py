@@ -24,6 +24,11 @@ def designs(draw):
     return x, rng
 
 
+def _rtol(vifs) -> float:
+    """Rounding in R is amplified by about the largest VIF; allow for it."""
+    return 1e-10 + 1e-13 * float(np.max(vifs))
+
+
 def _vifs(x: np.ndarray, names=None) -> np.ndarray:
     names = names or [f"x{j}" for j in range(x.shape[1])]
     result = assess(from_table(dict(zip(names, x.T, strict=True))), OPTS)
@@ -44,14 +49,16 @@ def test_invariant_to_affine_rescaling(design, shift, scale) -> None:
     j = int(rng.integers(x.shape[1]))
     y = x.copy()
     y[:, j] = y[:, j] * scale + shift
-    assert_allclose(_vifs(y), _vifs(x), rtol=1e-7)
+    base = _vifs(x)
+    assert_allclose(_vifs(y), base, rtol=1e-7 + 1e-12 * float(np.max(base)))
 
 
 @settings(max_examples=40, deadline=None)
 @given(designs())
 def test_invariant_to_row_order(design) -> None:
     x, rng = design
-    assert_allclose(_vifs(x[rng.permutation(x.shape[0])]), _vifs(x), rtol=1e-9)
+    base = _vifs(x)
+    assert_allclose(_vifs(x[rng.permutation(x.shape[0])]), base, rtol=_rtol(base))
 
 
 @settings(max_examples=40, deadline=None)
@@ -62,7 +69,8 @@ def test_permuting_columns_permutes_results(design) -> None:
     names = [f"x{j}" for j in range(x.shape[1])]
     base = dict(zip(names, _vifs(x, names), strict=True))
     permuted = _vifs(x[:, perm], [names[j] for j in perm])
-    assert_allclose(permuted, [base[names[j]] for j in perm], rtol=1e-9)
+    expected = [base[names[j]] for j in perm]
+    assert_allclose(permuted, expected, rtol=_rtol(expected))
 
 
 @settings(max_examples=40, deadline=None)
@@ -76,11 +84,9 @@ def test_merged_partial_summaries_equal_the_whole(design, cut) -> None:
     merged = a.merge(b)
     assert merged.n == whole.n
     assert_allclose(merged.comoments, whole.comoments, rtol=1e-9, atol=1e-9)
-    assert_allclose(
-        [v.vif for v in assess(merged, OPTS).variables],
-        [v.vif for v in assess(whole, OPTS).variables],
-        rtol=1e-9,
-    )
+    expected = [v.vif for v in assess(whole, OPTS).variables]
+    got = [v.vif for v in assess(merged, OPTS).variables]
+    assert_allclose(got, expected, rtol=_rtol(expected))
 
 
 @settings(max_examples=30, deadline=None)
