@@ -1,3 +1,94 @@
-"""Python client for the knotwork collinearity-diagnostics service."""
+"""Python client for the knotwork collinearity-diagnostics service.
 
-__all__: list[str] = []
+Send rows or, from a secure zone, only their summary::
+
+    from knotwork_client import Client, summarize
+
+    summary = summarize("sales.parquet", response="takings")   # read in bounded batches
+    with Client("http://127.0.0.1:8000", token=token) as client:
+        result = client.assess(summary, threshold=10)
+    result.to_frame()["vif"]
+
+Thresholds such as VIF 5 or 10 are rules of thumb (common practice); decisions on regulated
+models follow local rules and qualified review.
+"""
+
+from ._client import AsyncClient, Client
+from ._config import DEFAULT_TIMEOUT, Retry
+from ._dask import summarize_dask
+from ._exceptions import (
+    AuthenticationError,
+    DataError,
+    InputRejectedError,
+    KnotworkClientError,
+    MissingValuesError,
+    ResponseFormatError,
+    ServerError,
+    ServiceBusyError,
+    ServiceError,
+    TransportError,
+)
+from ._inputs import Correlation, Moments
+from ._results import (
+    Assessment,
+    Component,
+    Conditioning,
+    Dependency,
+    FarrarGlauber,
+    FieldError,
+    ProblemDetails,
+    Removal,
+    RemovalStep,
+    ResultWarning,
+    Ridge,
+    RidgeChoice,
+    RidgePoint,
+    Tangle,
+    Term,
+    Tests,
+    Variable,
+)
+from ._summary import Summary, merge_summaries, summarize
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "DEFAULT_TIMEOUT",
+    "Assessment",
+    "AsyncClient",
+    "AuthenticationError",
+    "Client",
+    "Component",
+    "Conditioning",
+    "Correlation",
+    "DataError",
+    "Dependency",
+    "FarrarGlauber",
+    "FieldError",
+    "InputRejectedError",
+    "KnotworkClientError",
+    "MissingValuesError",
+    "Moments",
+    "ProblemDetails",
+    "Removal",
+    "RemovalStep",
+    "ResponseFormatError",
+    "ResultWarning",
+    "Retry",
+    "Ridge",
+    "RidgeChoice",
+    "RidgePoint",
+    "ServerError",
+    "ServiceBusyError",
+    "ServiceError",
+    "Summary",
+    "Tangle",
+    "Term",
+    "Tests",
+    "TransportError",
+    "Variable",
+    "__version__",
+    "merge_summaries",
+    "summarize",
+    "summarize_dask",
+]

@@ -1,0 +1,490 @@
+"""``knotwork-screen``: screen many candidate models in one batch job.
+
+Reads CSV, Parquet or Arrow files (or folders of them, or a JSON manifest naming files and
+options), sends each to the service (only its local summary with ``--summary-only``), writes
+one JSON report per model and a combined CSV table, and exits with a status a pipeline can
+gate on:
+
+    0  every model passed the threshold rule
+    1  at least one model breaks it (a VIF above the threshold, an aliased column, or a
+       multi-column term with GVIF^(1/(2 df)) above sqrt(threshold))
+    2  the command line or the manifest is wrong (nothing was sent)
+    3  at least one model could not be assessed (unreadable file, rejected input, service
+       unreachable); reports for the others are still written
+
+The threshold is a rule of thumb (VIF 5 or 10 is common practice); decisions on regulated
+models follow local rules and qualified review.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import math
+import os
+import re
+import sys
+import threading
+import time
+from collections.abc import Sequence
+from concurrent.futures import ThreadPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, TextIO
+
+import httpx
+
+from ._client import Client
+from ._config import Retry
+from ._encode import OPTION_NAMES, normalize_options
+from ._exceptions import ServiceError
+from ._summary import MISSING_POLICIES, summarize
+from ._tables import TABLE_SUFFIXES
+
+__all__ = ["main"]
+
+PROG = "knotwork-screen"
+EXIT_OK, EXIT_BREACH, EXIT_USAGE, EXIT_ERROR = 0, 1, 2, 3
+DEFAULT_URL = "http://127.0.0.1:8000"
+DEFAULT_THRESHOLD = 5.0  # the service's default; a rule of thumb
+
+_TABLE_KEYS = ("response", "weights", "categorical", "columns", "missing")
+_MODEL_KEYS = frozenset({"name", "path", "summary_only", *_TABLE_KEYS, *OPTION_NAMES})
+
+CSV_FIELDS = (
+    "model",
+    "source",
+    "status",
+    "sent",
+    "n",
+    "p",
+    "threshold",
+    "max_vif",
+    "worst",
+    "above_threshold",
+    "aliased",
+    "breaches",
+    "removal_drops",
+    "warnings",
+    "error",
+)
+
+
+class UsageError(Exception):
+    """The command line or a manifest cannot be used; nothing is sent."""
+
+
+@dataclass
+class Model:
+    """One candidate model to screen: where its rows are and how to send them."""
+
+    name: str
+    path: Path
+    summary_only: bool
+    table: dict[str, Any] = field(default_factory=dict)
+    options: dict[str, Any] = field(default_factory=dict)
+
+
+@dataclass
+class Outcome:
+    """What happened to one model."""
+
+    model: Model
+    status: str  # "pass", "fail" or "error"
+    report: dict[str, Any]
+    row: dict[str, Any]
+
+
+# --- command line ---------------------------------------------------------------------------
+
+
+def _names(text: str) -> list[str]:
+    return [t.strip() for t in text.split(",") if t.strip()]
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog=PROG,
+        description=(
+            "Screen candidate models for collinearity with a knotwork service: one JSON "
+            "report per model plus a combined CSV; exit 1 when a model breaks the threshold "
+            "rule, 3 when a model could not be assessed."
+        ),
+        epilog=(
+            "Thresholds are rules of thumb; decisions on regulated models follow local rules "
+            "and qualified review. The token is read from --token-file or KNOTWORK_TOKEN."
+        ),
+    )
+    p.add_argument(
+        "inputs",
+        nargs="+",
+        metavar="INPUT",
+        help="CSV, Parquet or Arrow files, folders of them, or JSON manifests",
+    )
+    p.add_argument("--url", default=os.environ.get("KNOTWORK_URL", DEFAULT_URL))
+    p.add_argument("--token-file", type=Path, help="file whose first line is the bearer token")
+    p.add_argument("--out", type=Path, default=Path("knotwork-reports"), help="report folder")
+    p.add_argument("--report-csv", type=Path, help="combined table (default OUT/screen.csv)")
+    p.add_argument(
+        "--summary-only",
+        action="store_true",
+        help="send only each table's local summary (moments), never its rows",
+    )
+    p.add_argument("--response", help="response column")
+    p.add_argument("--weights", help="frequency-weights column")
+    p.add_argument("--categorical", type=_names, help="comma-separated categorical columns")
+    p.add_argument("--columns", type=_names, help="comma-separated columns to use")
+    p.add_argument("--missing", choices=MISSING_POLICIES)
+    p.add_argument("--threshold", type=float, help="VIF threshold (service default 5)")
+    p.add_argument("--protect", type=_names, help="comma-separated columns never dropped")
+    p.add_argument("--no-intercept", action="store_true", help="regression through the origin")
+    p.add_argument("--repair", choices=("reject", "nearest"))
+    p.add_argument("--sections", type=_names, help="comma-separated result sections")
+    p.add_argument("--parallel", type=int, default=4, help="requests in flight (default 4)")
+    p.add_argument("--timeout", type=float, default=60.0, help="seconds per request")
+    p.add_argument("--attempts", type=int, default=4, help="tries per request, retries included")
+    p.add_argument(
+        "--progress",
+        choices=("auto", "bar", "log", "none"),
+        default="auto",
+        help="a bar on a terminal, log lines otherwise (auto)",
+    )
+    return p
+
+
+def _cli_defaults(args: argparse.Namespace) -> dict[str, Any]:
+    given = {
+        "summary_only": args.summary_only or None,
+        "response": args.response,
+        "weights": args.weights,
+        "categorical": args.categorical,
+        "columns": args.columns,
+        "missing": args.missing,
+        "threshold": args.threshold,
+        "protect": args.protect,
+        "intercept": False if args.no_intercept else None,
+        "repair": args.repair,
+        "sections": args.sections,
+    }
+    return {k: v for k, v in given.items() if v is not None}
+
+
+def _model(name: str, path: Path, settings: dict[str, Any]) -> Model:
+    return Model(
+        name=name,
+        path=path,
+        summary_only=bool(settings.get("summary_only", False)),
+        table={k: settings[k] for k in _TABLE_KEYS if settings.get(k) is not None},
+        options={k: settings[k] for k in OPTION_NAMES if settings.get(k) is not None},
+    )
+
+
+def _from_manifest(path: Path, cli: dict[str, Any]) -> list[Model]:
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise UsageError(f"manifest {path}: cannot be read as JSON ({exc})") from None
+    if isinstance(doc, list):
+        doc = {"models": doc}
+    if not isinstance(doc, dict) or not isinstance(doc.get("models"), list):
+        raise UsageError(f"manifest {path}: expected {{'models': [...]}} or a list of models")
+    extra = sorted(set(doc) - {"defaults", "models"})
+    if extra:
+        raise UsageError(f"manifest {path}: unknown top-level keys {extra}")
+    defaults = doc.get("defaults", {})
+    if not isinstance(defaults, dict):
+        raise UsageError(f"manifest {path}: 'defaults' must be an object")
+    unknown = sorted(set(defaults) - (_MODEL_KEYS - {"name", "path"}))
+    if unknown:
+        raise UsageError(f"manifest {path}: unknown keys in defaults: {unknown}")
+    models = []
+    for i, entry in enumerate(doc["models"]):
+        where = f"manifest {path}: models[{i}]"
+        if isinstance(entry, str):
+            entry = {"path": entry}
+        if not isinstance(entry, dict) or "path" not in entry:
+            raise UsageError(f"{where}: each model needs a 'path'")
+        unknown = sorted(set(entry) - _MODEL_KEYS)
+        if unknown:
+            raise UsageError(f"{where}: unknown keys {unknown}; allowed: {sorted(_MODEL_KEYS)}")
+        target = Path(entry["path"])
+        if not target.is_absolute():
+            target = path.parent / target
+        settings = {**cli, **defaults, **entry}
+        models.append(_model(str(entry.get("name") or target.stem), target, settings))
+    return models
+
+
+def _collect(inputs: Sequence[str], cli: dict[str, Any]) -> list[Model]:
+    models: list[Model] = []
+    for text in inputs:
+        path = Path(text)
+        if path.is_dir():
+            files = sorted(
+                f for f in path.iterdir() if f.is_file() and f.suffix.lower() in TABLE_SUFFIXES
+            )
+            if not files:
+                raise UsageError(f"{path}: no .csv, .parquet or .arrow files in this folder")
+            models += [_model(f.stem, f, cli) for f in files]
+        elif path.suffix.lower() == ".json":
+            models += _from_manifest(path, cli)
+        elif path.suffix.lower() in TABLE_SUFFIXES:
+            if not path.is_file():
+                raise UsageError(f"{path}: no such file")
+            models.append(_model(path.stem, path, cli))
+        else:
+            raise UsageError(f"{path}: not a table file (.csv, .parquet, .arrow), folder or .json")
+    for m in models:
+        try:
+            normalize_options(m.options)
+        except (TypeError, ValueError) as exc:
+            raise UsageError(f"model {m.name!r}: {exc}") from None
+    seen: dict[str, int] = {}
+    for m in models:
+        base = re.sub(r"[^A-Za-z0-9._-]+", "_", m.name) or "model"
+        count = seen.get(base, 0)
+        seen[base] = count + 1
+        m.name = base if count == 0 else f"{base}-{count + 1}"
+    return models
+
+
+# --- judging --------------------------------------------------------------------------------
+
+
+def breaches(doc: dict[str, Any], threshold: float) -> list[str]:
+    """Names that break the threshold rule in an assessment document.
+
+    A column counts unless it belongs to a multi-column term; it breaks the rule when it is
+    aliased or above the threshold. A multi-column term breaks it when GVIF^(1/(2 df)) is
+    missing (not finite) or exceeds sqrt(threshold), the comparison of Fox & Monette (1992).
+    """
+    grouped: set[str] = set()
+    out: list[str] = []
+    for term in doc.get("terms") or []:
+        cols = term.get("columns") or []
+        if len(cols) < 2:
+            continue
+        grouped.update(cols)
+        scaled = term.get("gvif_scaled")
+        if scaled is None or scaled > math.sqrt(threshold):
+            out.append(str(term.get("name")))
+    for var in doc.get("variables") or []:
+        if var.get("name") in grouped:
+            continue
+        if var.get("aliased") or var.get("above_threshold"):
+            out.append(str(var.get("name")))
+    return out
+
+
+def _threshold(doc: dict[str, Any], options: dict[str, Any]) -> float:
+    removal = doc.get("removal") or {}
+    value = options.get("threshold", removal.get("threshold"))
+    return float(value) if value is not None else DEFAULT_THRESHOLD
+
+
+def _max_vif(doc: dict[str, Any]) -> tuple[float | None, str | None]:
+    worst: tuple[float, str] | None = None
+    for var in doc.get("variables") or []:
+        vif = math.inf if var.get("vif") is None else float(var["vif"])
+        if worst is None or vif > worst[0]:
+            worst = (vif, str(var.get("name")))
+    return (None, None) if worst is None else worst
+
+
+# --- running --------------------------------------------------------------------------------
+
+
+def _screen(client: Client, model: Model) -> Outcome:
+    base: dict[str, Any] = {"model": model.name, "source": str(model.path)}
+    try:
+        if model.summary_only:
+            table = dict(model.table)
+            summary = summarize(model.path, **table)
+            payload = client._assess_payload(summary, dict(model.options))
+        else:
+            payload = client._assess_payload(model.path, {**model.table, **model.options})
+        doc = client._post_assess(payload)
+    except Exception as exc:  # one bad model must not stop the batch; it is reported instead
+        error: dict[str, Any] = {"kind": type(exc).__name__, "message": str(exc)}
+        if isinstance(exc, ServiceError):
+            error["status"] = exc.status
+            error["problem"] = {
+                "type": exc.problem.type,
+                "title": exc.problem.title,
+                "status": exc.problem.status,
+                "detail": exc.problem.detail,
+                "errors": [{"pointer": e.pointer, "reason": e.reason} for e in exc.problem.errors],
+            }
+        report = {**base, "status": "error", "error": error}
+        row = {**base, "status": "error", "error": str(exc).splitlines()[0] if str(exc) else ""}
+        return Outcome(model, "error", report, row)
+    if not isinstance(doc, dict):
+        report = {**base, "status": "error", "error": {"message": "answer is not an object"}}
+        return Outcome(model, "error", report, {**base, "status": "error"})
+    threshold = _threshold(doc, model.options)
+    broken = breaches(doc, threshold)
+    status = "fail" if broken else "pass"
+    max_vif, worst = _max_vif(doc)
+    removal = doc.get("removal") or {}
+    report = {
+        **base,
+        "status": status,
+        "sent": payload.kind,
+        "threshold": threshold,
+        "breaches": broken,
+        "assessment": doc,
+    }
+    row = {
+        **base,
+        "status": status,
+        "sent": payload.kind,
+        "n": doc.get("n"),
+        "p": doc.get("p"),
+        "threshold": threshold,
+        "max_vif": "inf" if max_vif == math.inf else max_vif,
+        "worst": worst,
+        "above_threshold": sum(bool(v.get("above_threshold")) for v in doc.get("variables", [])),
+        "aliased": sum(bool(v.get("aliased")) for v in doc.get("variables", [])),
+        "breaches": ";".join(broken),
+        "removal_drops": ";".join(str(s.get("drop")) for s in removal.get("steps") or []),
+        "warnings": ";".join(str(w.get("code")) for w in doc.get("warnings") or []),
+        "error": "",
+    }
+    return Outcome(model, status, report, row)
+
+
+class _Progress:
+    """A redrawn bar on a terminal, one plain line per model otherwise."""
+
+    def __init__(self, total: int, mode: str, stream: TextIO) -> None:
+        if mode == "auto":
+            mode = "bar" if stream.isatty() else "log"
+        self.mode, self.total, self.stream = mode, total, stream
+        self.counts = {"pass": 0, "fail": 0, "error": 0}
+        self.done = 0
+        self.started = time.monotonic()
+        self._lock = threading.Lock()
+        if self.mode == "bar":
+            self._draw("")
+
+    def update(self, outcome: Outcome) -> None:
+        with self._lock:
+            self.done += 1
+            self.counts[outcome.status] += 1
+            if self.mode == "log":
+                detail = ""
+                if outcome.status == "fail":
+                    detail = f" (breaks the rule: {outcome.row['breaches'].replace(';', ', ')})"
+                elif outcome.status == "error":
+                    detail = f" ({outcome.row.get('error', '')})"
+                self._line(
+                    f"[{self.done}/{self.total}] {outcome.model.name}: {outcome.status}{detail}"
+                )
+            elif self.mode == "bar":
+                self._draw(outcome.model.name)
+
+    def _draw(self, last: str) -> None:
+        width = 30
+        filled = int(width * self.done / max(self.total, 1))
+        bar = "#" * filled + "." * (width - filled)
+        c = self.counts
+        text = (
+            f"\r{PROG} [{bar}] {self.done}/{self.total}  pass {c['pass']}  fail {c['fail']}  "
+            f"error {c['error']}  {last[:30]:<30}"
+        )
+        self.stream.write(text)
+        self.stream.flush()
+
+    def _line(self, text: str) -> None:
+        self.stream.write(f"{PROG}: {text}\n")
+        self.stream.flush()
+
+    def finish(self) -> None:
+        c = self.counts
+        took = time.monotonic() - self.started
+        if self.mode == "bar":
+            self.stream.write("\n")
+        if self.mode != "none":
+            self._line(
+                f"{self.total} models in {took:.1f} s: {c['pass']} pass, {c['fail']} break the "
+                f"threshold rule, {c['error']} could not be assessed"
+            )
+
+
+def _token(args: argparse.Namespace) -> str | None:
+    if args.token_file is not None:
+        try:
+            lines = args.token_file.read_text(encoding="utf-8").splitlines()
+        except OSError as exc:
+            raise UsageError(f"--token-file: {exc}") from None
+        token = lines[0].strip() if lines else ""
+        if not token:
+            raise UsageError(f"--token-file {args.token_file}: the first line is empty")
+        return token
+    return os.environ.get("KNOTWORK_TOKEN") or None
+
+
+def _write_reports(outcomes: list[Outcome], out: Path, table: Path) -> None:
+    out.mkdir(parents=True, exist_ok=True)
+    for o in outcomes:
+        (out / f"{o.model.name}.json").write_text(
+            json.dumps(o.report, indent=2, allow_nan=False) + "\n", encoding="utf-8"
+        )
+    table.parent.mkdir(parents=True, exist_ok=True)
+    with table.open("w", newline="", encoding="utf-8") as fh:
+        writer = csv.DictWriter(fh, fieldnames=CSV_FIELDS, extrasaction="ignore")
+        writer.writeheader()
+        for o in outcomes:
+            writer.writerow({k: ("" if o.row.get(k) is None else o.row.get(k)) for k in CSV_FIELDS})
+
+
+def main(
+    argv: Sequence[str] | None = None,
+    *,
+    transport: httpx.BaseTransport | None = None,
+    stderr: TextIO | None = None,
+) -> int:
+    """Run the command line; returns the exit status (see the module docstring)."""
+    err = stderr if stderr is not None else sys.stderr
+    parser = _parser()
+    args = parser.parse_args(argv)
+    try:
+        if args.parallel < 1:
+            raise UsageError("--parallel must be at least 1")
+        if args.attempts < 1:
+            raise UsageError("--attempts must be at least 1")
+        if not (args.timeout > 0 and math.isfinite(args.timeout)):
+            raise UsageError("--timeout must be a positive number of seconds")
+        token = _token(args)
+        models = _collect(args.inputs, _cli_defaults(args))
+    except UsageError as exc:
+        err.write(f"{PROG}: error: {exc}\n")
+        return EXIT_USAGE
+    progress = _Progress(len(models), args.progress, err)
+    outcomes: list[Outcome | None] = [None] * len(models)
+    client = Client(
+        args.url,
+        token=token,
+        timeout=httpx.Timeout(args.timeout, connect=min(5.0, args.timeout)),
+        transport=transport,
+        retry=Retry(attempts=args.attempts, total=max(60.0, 4 * args.timeout)),
+    )
+    with client, ThreadPoolExecutor(max_workers=args.parallel) as pool:
+        futures = {pool.submit(_screen, client, m): i for i, m in enumerate(models)}
+        for future in as_completed(futures):
+            outcome = future.result()
+            outcomes[futures[future]] = outcome
+            progress.update(outcome)
+    progress.finish()
+    done = [o for o in outcomes if o is not None]
+    _write_reports(done, args.out, args.report_csv or args.out / "screen.csv")
+    if any(o.status == "error" for o in done):
+        return EXIT_ERROR
+    if any(o.status == "fail" for o in done):
+        return EXIT_BREACH
+    return EXIT_OK
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
