@@ -1,0 +1,86 @@
+"""Bytes -> typed input: JSON via msgspec, Arrow IPC and Parquet via pyarrow.
+
+The codecs know nothing of HTTP. Each turns a body (and, for binary tables, the query string)
+into a :class:`Prepared` request or raises a :class:`CodecError` that points at the fault;
+:func:`run` hands a prepared request to the core.
+"""
+
+from ._arrow import ARROW_FILE, ARROW_STREAM, PARQUET, decode_table_body, read_table, table_data
+from ._errors import (
+    CodecError,
+    Fault,
+    InvalidRequest,
+    MalformedBody,
+    TooLarge,
+    UnsupportedMediaType,
+    UnusableInput,
+)
+from ._json import decode_assess, decode_batch
+from ._pointers import escape, join
+from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
+from ._query import QUERY_PARAMETERS, options_from_query
+from ._wire import (
+    SECTIONS,
+    AssessOptions,
+    AssessRequest,
+    BatchRequest,
+    ComponentsOptions,
+    CorrelationInput,
+    CorrelationResponse,
+    Input,
+    MomentsInput,
+    MomentsPart,
+    RidgeOptions,
+    TableInput,
+)
+
+__all__ = [
+    "ARROW_FILE",
+    "ARROW_STREAM",
+    "PARQUET",
+    "QUERY_PARAMETERS",
+    "SECTIONS",
+    "AssessOptions",
+    "AssessRequest",
+    "BatchRequest",
+    "CodecError",
+    "ComponentsOptions",
+    "CorrelationData",
+    "CorrelationInput",
+    "CorrelationResponse",
+    "Fault",
+    "Input",
+    "InvalidRequest",
+    "Limits",
+    "MalformedBody",
+    "MomentsData",
+    "MomentsInput",
+    "MomentsPart",
+    "Origin",
+    "Prepared",
+    "RidgeOptions",
+    "TableData",
+    "TableInput",
+    "TooLarge",
+    "UnsupportedMediaType",
+    "UnusableInput",
+    "decode_assess",
+    "decode_batch",
+    "decode_table_body",
+    "escape",
+    "join",
+    "options_from_query",
+    "read_table",
+    "run",
+    "table_data",
+]
+
+
+def __getattr__(name: str):  # type: ignore[no-untyped-def]
+    # The core is imported on first use of ``run`` only, so decoding works (and is tested)
+    # without loading the numerical stack.
+    if name == "run":
+        from ._convert import run
+
+        return run
+    raise AttributeError(name)

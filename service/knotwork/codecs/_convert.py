@@ -1,0 +1,88 @@
+"""Prepared requests -> core summaries and options (the only codec module that imports the core)."""
+
+from __future__ import annotations
+
+from knotwork.core import (
+    Assessment,
+    Options,
+    Summary,
+    assess,
+    from_correlation,
+    from_moments,
+    from_table,
+    merge_moments,
+)
+
+from ._prepared import CorrelationData, MomentsData, Prepared, TableData
+from ._wire import AssessOptions
+
+__all__ = ["core_options", "run", "summarize"]
+
+
+def core_options(options: AssessOptions) -> Options:
+    """The core's :class:`Options` for wire options (``missing`` and ``repair`` go elsewhere)."""
+    ridge = options.ridge
+    components = options.components
+    kwargs = {}
+    if components is not None:
+        kwargs["components_rule"] = components.rule
+        kwargs["components_limit"] = components.limit
+    return Options(
+        threshold=options.threshold,
+        protect=tuple(options.protect),
+        intercept=options.intercept,
+        sections=tuple(options.sections) if options.sections is not None else None,
+        ridge_grid=tuple(ridge.grid) if ridge is not None and ridge.grid is not None else None,
+        **kwargs,
+    )
+
+
+def summarize(prepared: Prepared) -> Summary:
+    """Build the core summary of a prepared request."""
+    data = prepared.data
+    repair = prepared.options.repair
+    if isinstance(data, TableData):
+        return from_table(
+            data.columns,
+            categorical=data.categorical or None,
+            response=data.response,
+            weights=data.weights,
+            missing=prepared.options.missing,
+            repair=repair,
+        )
+    if isinstance(data, CorrelationData):
+        return from_correlation(
+            data.names,
+            data.matrix,
+            data.n,
+            response=data.response,
+            terms=data.terms,
+            repair=repair,
+        )
+    assert isinstance(data, MomentsData)
+    if data.parts is not None:
+        return merge_moments(
+            data.parts, data.names, response=data.response, terms=data.terms, repair=repair
+        )
+    assert data.n is not None and data.means is not None
+    return from_moments(
+        data.names,
+        data.n,
+        data.means,
+        data.covariance,
+        response=data.response,
+        terms=data.terms,
+        repair=repair,
+    )
+
+
+def run(prepared: Prepared) -> Assessment:
+    """Summarize and assess: the whole computation for one request.
+
+    Raises
+    ------
+    KnotworkError
+        For input or options the core cannot use (pointers relative to the core's documents;
+        ``prepared.origin.locate`` translates them).
+    """
+    return assess(summarize(prepared), core_options(prepared.options))

@@ -1,0 +1,117 @@
+"""Decoded requests, ready for the core: plain names, numbers and numpy arrays.
+
+Every codec (JSON, Arrow IPC, Parquet) produces a :class:`Prepared`; :mod:`._convert` turns it
+into a core summary and options. :class:`Origin` remembers where the request came from, so an
+error the core reports against its own input document points into the request the client sent.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._pointers import join
+from ._wire import AssessOptions
+
+__all__ = ["CorrelationData", "Limits", "MomentsData", "Origin", "Prepared", "TableData"]
+
+
+@dataclass(frozen=True, slots=True)
+class Limits:
+    """Input limits from the settings; beyond them a request answers 413."""
+
+    max_cells: int = 10_000_000
+    max_columns: int = 1000
+    max_batch_items: int = 500
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class TableData:
+    """Rows, column by column: float64 arrays (NaN = missing) and categorical labels."""
+
+    columns: dict[str, np.ndarray]
+    categorical: dict[str, list[str | None]]
+    response: str | None = None
+    weights: str | None = None
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class CorrelationData:
+    """A correlation matrix, its n, and optionally a response and terms."""
+
+    names: list[str]
+    matrix: list[list[float]]
+    n: float
+    response: tuple[str, list[float]] | None = None
+    terms: dict[str, list[str]] | None = None
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class MomentsData:
+    """Moments in one piece (n, means, covariance) or as parts to merge."""
+
+    names: list[str]
+    n: float | None = None
+    means: list[float] | None = None
+    covariance: list[list[float]] | None = None
+    parts: list[tuple[float, list[float], list[list[float]]]] | None = None
+    response: str | None = None
+    terms: dict[str, list[str]] | None = None
+
+
+# The query parameter that carries each option, for requests whose options are in the query.
+_OPTION_PARAMETERS = {
+    "ridge/grid": "ridge_grid",
+    "components/rule": "components_rule",
+    "components/limit": "components_limit",
+}
+_INPUT_PARAMETERS = ("response", "weights")
+
+
+@dataclass(frozen=True, slots=True)
+class Origin:
+    """Where a request's input and options live, to translate the core's pointers.
+
+    Attributes
+    ----------
+    base
+        Pointer of the request document inside the body: ``""``, or ``/items/<i>`` in a batch.
+    query
+        True when options (and ``response``, ``weights``) came as query parameters and the
+        input is a binary table: input pointers then name columns (``/columns/<name>``) and
+        option pointers name parameters (``/query/<parameter>``).
+    """
+
+    base: str = ""
+    query: bool = False
+
+    def locate(self, scope: str, pointer: str) -> str:
+        """The request pointer of ``pointer`` (relative to the core's input or options)."""
+        if not self.query:
+            return f"{self.base}/{'options' if scope == 'options' else 'input'}{pointer}"
+        tokens = pointer.split("/")[1:] if pointer else []
+        if scope == "options":
+            if not tokens:
+                return "/query"
+            key = "/".join(tokens[:2])
+            return join("query", _OPTION_PARAMETERS.get(key, tokens[0]))
+        if tokens and tokens[0] in _INPUT_PARAMETERS:
+            return join("query", tokens[0])
+        return pointer
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Prepared:
+    """A decoded request: the data, the options and where they came from."""
+
+    data: TableData | CorrelationData | MomentsData
+    options: AssessOptions
+    origin: Origin = Origin()
+
+    @property
+    def kind(self) -> str:
+        """``table``, ``correlation`` or ``moments``."""
+        if isinstance(self.data, TableData):
+            return "table"
+        return "correlation" if isinstance(self.data, CorrelationData) else "moments"

@@ -1,0 +1,326 @@
+"""The JSON request schema: msgspec Structs, frozen, keyword-only, unknown fields rejected.
+
+These Structs are the single declaration of what a request may contain; the OpenAPI document
+is generated from them. Limits that depend on settings (cells, columns, batch items) are
+checked after decoding, in :mod:`knotwork.codecs._json`; limits that do not are here as
+``Meta`` constraints.
+
+Columns of a table, categorical columns and term lists are decoded as raw JSON first and then
+column by column, so an error names its column (msgspec reports dictionary values only as
+``[...]``); ``extra_json_schema`` documents their real shape.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+import msgspec
+from msgspec import Meta, Raw, Struct
+
+__all__ = [
+    "SECTIONS",
+    "AssessOptions",
+    "AssessRequest",
+    "BatchRequest",
+    "ComponentsOptions",
+    "CorrelationInput",
+    "CorrelationResponse",
+    "Input",
+    "MomentsInput",
+    "MomentsPart",
+    "RidgeOptions",
+    "TableInput",
+]
+
+#: The parts of an assessment a client may ask for (all of them by default).
+SECTIONS = (
+    "variables",
+    "terms",
+    "conditioning",
+    "tests",
+    "dependencies",
+    "removal",
+    "ridge",
+    "components",
+    "comparison",
+)
+
+Name = Annotated[
+    str,
+    Meta(
+        min_length=1,
+        max_length=256,
+        description="A variable, column or term name (1 to 256 characters).",
+    ),
+]
+Count = Annotated[
+    float,
+    Meta(gt=0, description="Number of observations, or the sum of frequency weights (> 0)."),
+]
+Section = Literal[
+    "variables",
+    "terms",
+    "conditioning",
+    "tests",
+    "dependencies",
+    "removal",
+    "ridge",
+    "components",
+    "comparison",
+]
+
+_NUMBER_OR_NULL = {"anyOf": [{"type": "number"}, {"type": "null"}]}
+NumericColumn = Annotated[
+    Raw,
+    Meta(
+        extra_json_schema={
+            "type": "array",
+            "items": _NUMBER_OR_NULL,
+            "description": "Values in row order; null marks a missing value.",
+        }
+    ),
+]
+CategoricalColumn = Annotated[
+    Raw,
+    Meta(
+        extra_json_schema={
+            "type": "array",
+            "items": {"anyOf": [{"type": "string"}, {"type": "null"}]},
+            "description": "Levels in row order; null marks a missing value.",
+        }
+    ),
+]
+TermColumns = Annotated[
+    Raw,
+    Meta(
+        extra_json_schema={
+            "type": "array",
+            "items": {"type": "string", "minLength": 1, "maxLength": 256},
+            "minItems": 1,
+            "description": "The columns (names) that together form this term.",
+        }
+    ),
+]
+Terms = Annotated[
+    dict[Name, TermColumns],
+    Meta(
+        description=(
+            "Multi-column terms for GVIF: term name -> the names of its columns "
+            "(for example the indicator columns of one categorical variable)."
+        )
+    ),
+]
+
+
+class _Wire(Struct, frozen=True, kw_only=True, forbid_unknown_fields=True):
+    """Base of every request Struct: immutable, keyword-only, unknown fields rejected."""
+
+
+class TableInput(_Wire, tag="table", tag_field="kind"):
+    """Rows of data, column by column."""
+
+    columns: Annotated[
+        dict[Name, NumericColumn],
+        Meta(description="Numeric columns: name -> values, all of the same length."),
+    ]
+    categorical: (
+        Annotated[
+            dict[Name, CategoricalColumn],
+            Meta(
+                description=(
+                    "Categorical columns: name -> levels. Each is expanded to indicator "
+                    "columns against a reference level and treated as one term (GVIF)."
+                )
+            ),
+        ]
+        | None
+    ) = None
+    response: (
+        Annotated[Name, Meta(description="Response column, excluded from predictors.")] | None
+    ) = None
+    weights: (
+        Annotated[Name, Meta(description="Column of non-negative frequency or survey weights.")]
+        | None
+    ) = None
+
+
+class CorrelationResponse(_Wire):
+    """The response variable of a correlation input: its correlation with each predictor."""
+
+    name: Name
+    correlations: Annotated[
+        list[float], Meta(description="Correlation of the response with each name, in order.")
+    ]
+
+
+class CorrelationInput(_Wire, tag="correlation", tag_field="kind"):
+    """A correlation matrix of the predictors and the number of observations behind it."""
+
+    names: Annotated[list[Name], Meta(min_length=1, description="Predictor names, in order.")]
+    matrix: Annotated[
+        list[list[float]],
+        Meta(description="Square, symmetric correlation matrix with unit diagonal, row by row."),
+    ]
+    n: Count
+    response: CorrelationResponse | None = None
+    terms: Terms | None = None
+
+
+class MomentsPart(_Wire):
+    """Summary moments of one part of the data."""
+
+    n: Count
+    means: Annotated[list[float], Meta(description="Mean of each name, in order.")]
+    covariance: Annotated[
+        list[list[float]],
+        Meta(description="Sample covariance matrix (denominator n - 1), row by row."),
+    ]
+
+
+class MomentsInput(_Wire, tag="moments", tag_field="kind"):
+    """Summary moments: n, means and covariance, or a list of parts merged by the service."""
+
+    names: Annotated[
+        list[Name],
+        Meta(min_length=1, description="Variable names, in order (response included, if any)."),
+    ]
+    n: Count | None = None
+    means: Annotated[list[float], Meta(description="Mean of each name, in order.")] | None = None
+    covariance: (
+        Annotated[
+            list[list[float]],
+            Meta(description="Sample covariance matrix (denominator n - 1), row by row."),
+        ]
+        | None
+    ) = None
+    parts: (
+        Annotated[
+            list[MomentsPart],
+            Meta(
+                min_length=1,
+                description="Partial summaries, merged exactly; instead of n/means/covariance.",
+            ),
+        ]
+        | None
+    ) = None
+    response: (
+        Annotated[Name, Meta(description="One of names: the response, excluded from predictors.")]
+        | None
+    ) = None
+    terms: Terms | None = None
+
+
+Input = TableInput | CorrelationInput | MomentsInput
+
+
+class RidgeOptions(_Wire):
+    """Settings of the ridge trace."""
+
+    grid: (
+        Annotated[
+            list[Annotated[float, Meta(ge=0)]],
+            Meta(
+                min_length=1,
+                max_length=1000,
+                description="Values of k >= 0 on the correlation scale; default: a built-in grid.",
+            ),
+        ]
+        | None
+    ) = None
+
+
+class ComponentsOptions(_Wire):
+    """Settings of principal components."""
+
+    rule: Annotated[
+        Literal["condition_index", "cumulative"],
+        Meta(
+            description=(
+                "How to choose the kept components: by condition index (drop those above the "
+                "limit) or by cumulative share of variance (keep until the limit is reached)."
+            )
+        ),
+    ] = "condition_index"
+    limit: (
+        Annotated[
+            float,
+            Meta(
+                gt=0,
+                description=(
+                    "The rule's limit: a condition index, or a cumulative share of variance in "
+                    "(0, 1]; default: the core's rule-of-thumb value, reported in the result."
+                ),
+            ),
+        ]
+        | None
+    ) = None
+
+
+class AssessOptions(_Wire):
+    """What to compute and how; every field has a safe default."""
+
+    threshold: Annotated[
+        float,
+        Meta(
+            gt=1,
+            description=(
+                "VIF above which a variable counts as redundant. A rule of thumb: common "
+                "practice is 5 or 10."
+            ),
+        ),
+    ] = 5.0
+    protect: Annotated[
+        list[Name], Meta(max_length=10_000, description="Names never proposed for removal.")
+    ] = msgspec.field(default_factory=list)
+    intercept: Annotated[
+        bool,
+        Meta(
+            description=(
+                "true: centred diagnostics (a model with an intercept); false: regression "
+                "through the origin, uncentred VIF."
+            )
+        ),
+    ] = True
+    missing: Annotated[
+        Literal["reject", "drop_rows", "pairwise"],
+        Meta(
+            description=(
+                "Missing values in a table: reject (with counts per column), drop_rows "
+                "(complete cases) or pairwise (each correlation from the rows where both exist)."
+            )
+        ),
+    ] = "reject"
+    repair: Annotated[
+        Literal["reject", "nearest"],
+        Meta(
+            description=(
+                "An inconsistent correlation matrix: reject, or repair it to the nearest valid "
+                "one and report how far it moved."
+            )
+        ),
+    ] = "reject"
+    sections: (
+        Annotated[
+            list[Section],
+            Meta(min_length=1, description="Which parts to compute; default: all of them."),
+        ]
+        | None
+    ) = None
+    ridge: RidgeOptions | None = None
+    components: ComponentsOptions | None = None
+
+
+class AssessRequest(_Wire):
+    """One assessment: the input and, optionally, options."""
+
+    input: Input
+    options: AssessOptions = msgspec.field(default_factory=AssessOptions)
+
+
+class BatchRequest(_Wire):
+    """Many assessments, each answered on its own."""
+
+    items: Annotated[
+        list[AssessRequest],
+        Meta(min_length=1, description="The assessments; at most the configured batch limit."),
+    ]
