@@ -417,9 +417,10 @@ def _parquet_reader(path: Path, wanted: list[str] | None) -> Any:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    # A positive buffer_size streams each column chunk instead of loading whole row groups,
-    # so memory stays bounded by the batch, not by how the file was written.
-    handle = pq.ParquetFile(path, buffer_size=1 << 20)
+    # Buffered column streams without pre-buffering: pages are read as batches need them, so
+    # memory stays bounded by the batch and the page size, not by the row-group size (with
+    # pre_buffer, whole row groups, and here whole files, were held at once).
+    handle = pq.ParquetFile(path, buffer_size=1 << 20, pre_buffer=False)
     names = wanted if wanted is not None else handle.schema_arrow.names
     if wanted is not None:
         _checked(handle.schema_arrow.names, wanted)
@@ -436,7 +437,9 @@ def _parquet_dataset(path: Path) -> Any:
     _pyarrow("reading a Parquet dataset")
     import pyarrow.dataset as ds
 
-    scan = ds.ParquetFragmentScanOptions(use_buffered_stream=True, buffer_size=1 << 20)
+    scan = ds.ParquetFragmentScanOptions(
+        use_buffered_stream=True, buffer_size=1 << 20, pre_buffer=False
+    )
     fmt = ds.ParquetFileFormat(default_fragment_scan_options=scan)
     dataset = ds.dataset(path, format=fmt)
     if not dataset.files:
