@@ -306,15 +306,22 @@ class AssessOptions(_Wire):
         ]
         | None
     ) = None
-    ridge: RidgeOptions | None = None
-    components: ComponentsOptions | None = None
+    ridge: Annotated[RidgeOptions, Meta(description="Settings of the ridge trace.")] | None = None
+    components: (
+        Annotated[ComponentsOptions, Meta(description="Settings of principal components.")] | None
+    ) = None
 
 
 class AssessRequest(_Wire):
     """One assessment: the input and, optionally, options."""
 
-    input: Input
-    options: AssessOptions = msgspec.field(default_factory=AssessOptions)
+    input: Annotated[
+        Input,
+        Meta(description="The data: a table, a correlation matrix or moments, tagged by kind."),
+    ]
+    options: Annotated[
+        AssessOptions, Meta(description="What to compute and how (all optional).")
+    ] = msgspec.field(default_factory=AssessOptions)
 
 
 class BatchRequest(_Wire):
