@@ -1,0 +1,240 @@
+"""Every error as ``application/problem+json`` (RFC 9457), mapped in this one place.
+
+A problem document has ``type`` (a stable URI per kind of error: :data:`PROBLEM_BASE` plus
+a slug), ``title`` (fixed per type), ``status``, ``detail`` (this occurrence, in one
+sentence), ``errors`` (``{pointer, reason}`` entries, JSON pointers per RFC 6901 into the
+request, or ``/query/<parameter>``) and ``request_id`` (also in the ``X-Request-ID`` header).
+
+Sources, all handled by :func:`problem_of`:
+
+- codec errors (:class:`knotwork.codecs.CodecError`): 400, 413, 415, 422;
+- core errors (:class:`knotwork.core.KnotworkError`): 422, pointers translated by the request's
+  :class:`~knotwork.codecs.Origin`;
+- :class:`ApiError`, raised by this package: 401, 403, 413, 503 (saturated, time limit);
+- litestar's HTTP exceptions (routing: 404, 405; body limit: 413) with their headers kept;
+- anything else: 500, logged with its traceback (never its message, which could hold data).
+"""
+
+from __future__ import annotations
+
+import logging
+import traceback
+from collections.abc import Mapping
+
+import msgspec
+from litestar import Request, Response
+from litestar.exceptions import HTTPException
+
+from knotwork.codecs import CodecError, Origin
+
+from ._context import current_request_id
+
+__all__ = [
+    "PROBLEM_BASE",
+    "PROBLEM_MEDIA_TYPE",
+    "TITLES",
+    "ApiError",
+    "Located",
+    "ProblemDocument",
+    "ProblemError",
+    "handle_exception",
+    "problem_of",
+]
+
+#: Base of every problem ``type`` URI; the slug of the kind of error follows it.
+PROBLEM_BASE = "https://knotwork.example/problems/"
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+
+_log = logging.getLogger("knotwork.errors")
+
+#: The title of each problem type, by slug (stable: clients may show or match them).
+TITLES: Mapping[str, str] = {
+    "malformed-body": "The body could not be parsed",
+    "invalid-request": "The request does not fit the schema",
+    "invalid-input": "The input cannot be used as given",
+    "missing-values": "The input has missing values",
+    "invalid-matrix": "A matrix is not a valid correlation or covariance matrix",
+    "too-few-data": "Too few observations or predictors",
+    "invalid-option": "An option is out of range or does not fit the input",
+    "unauthorized": "A bearer token is required",
+    "forbidden": "The bearer token is not accepted",
+    "not-found": "No such resource",
+    "method-not-allowed": "Method not allowed on this resource",
+    "body-too-large": "The body is larger than allowed",
+    "too-many-cells": "The input has more numbers than allowed",
+    "too-many-columns": "The input has more columns than allowed",
+    "too-many-items": "The batch has more items than allowed",
+    "unsupported-media-type": "The content type is not supported here",
+    "saturated": "The service is busy",
+    "time-limit": "The request took longer than the time limit",
+    "internal-error": "Internal error",
+    "http-error": "HTTP error",
+}
+
+_STATUS_SLUGS = {
+    400: "invalid-request",
+    401: "unauthorized",
+    403: "forbidden",
+    404: "not-found",
+    405: "method-not-allowed",
+    413: "body-too-large",
+    415: "unsupported-media-type",
+    503: "saturated",
+}
+# Headers of a framework exception that a client needs, kept on the problem response.
+_KEPT_HEADERS = ("allow", "retry-after", "www-authenticate")
+
+
+class ProblemError(msgspec.Struct, frozen=True, kw_only=True):
+    """Where a request is wrong and why.
+
+    Attributes
+    ----------
+    pointer
+        JSON pointer (RFC 6901) into the request document (``/input/columns/x/3``), a column
+        of a binary table (``/columns/x``) or a query parameter (``/query/threshold``); ``""``
+        for the whole body.
+    reason
+        What was expected and what came, in one sentence.
+    """
+
+    pointer: str
+    reason: str
+
+
+class ProblemDocument(msgspec.Struct, frozen=True, kw_only=True):
+    """An error (RFC 9457), described for machines (``type``, ``errors``) and people.
+
+    Attributes
+    ----------
+    type
+        Stable URI of the kind of error; match on it rather than on the wording.
+    title
+        Short, fixed summary of the kind of error.
+    status
+        The HTTP status code.
+    detail
+        This occurrence, in one sentence: what was wrong and how to fix it.
+    errors
+        Each offending field with its pointer and reason (empty when no field is at fault).
+    request_id
+        The request's id, as in the X-Request-ID header and the service's logs.
+    """
+
+    type: str
+    title: str
+    status: int
+    detail: str
+    errors: list[ProblemError] = msgspec.field(default_factory=list)
+    request_id: str | None = None
+
+
+class ApiError(Exception):
+    """An error this package raises, with its status, slug, detail, faults and headers."""
+
+    def __init__(
+        self,
+        status: int,
+        kind: str,
+        detail: str,
+        errors: list[ProblemError] | None = None,
+        headers: Mapping[str, str] | None = None,
+    ) -> None:
+        super().__init__(detail)
+        self.status = status
+        self.kind = kind
+        self.detail = detail
+        self.errors = errors or []
+        self.headers = dict(headers or {})
+
+
+class Located(Exception):
+    """A core error together with the origin of the request it is about."""
+
+    def __init__(self, error: Exception, origin: Origin) -> None:
+        super().__init__(type(error).__name__)
+        self.error = error
+        self.origin = origin
+
+
+def _document(status: int, kind: str, detail: str, errors: list[ProblemError]) -> ProblemDocument:
+    return ProblemDocument(
+        type=PROBLEM_BASE + kind,
+        title=TITLES.get(kind, TITLES["http-error"]),
+        status=status,
+        detail=detail,
+        errors=errors,
+        request_id=current_request_id(),
+    )
+
+
+def _core_error_types() -> tuple[type[Exception], ...]:
+    # Imported lazily so that the HTTP layer's error mapping does not pull the numerics in.
+    from knotwork.core import KnotworkError
+
+    return (KnotworkError,)
+
+
+def problem_of(
+    exc: BaseException, origin: Origin | None = None
+) -> tuple[ProblemDocument, dict[str, str]]:
+    """The problem document and response headers for an exception.
+
+    Parameters
+    ----------
+    exc
+        Any exception raised while answering a request.
+    origin
+        Where the request's input and options live, for core errors raised outside a
+        :class:`Located` wrapper (batch items).
+    """
+    if isinstance(exc, Located):
+        return problem_of(exc.error, exc.origin)
+    if isinstance(exc, ApiError):
+        return _document(exc.status, exc.kind, exc.detail, exc.errors), exc.headers
+    if isinstance(exc, CodecError):
+        errors = [ProblemError(pointer=f.pointer, reason=f.reason) for f in exc.problems]
+        return _document(exc.status, exc.kind, exc.message, errors), {}
+    if isinstance(exc, _core_error_types()):
+        where = origin or Origin()
+        scope = getattr(exc, "scope", "input")
+        errors = [
+            ProblemError(pointer=where.locate(scope, p.pointer), reason=p.reason)
+            for p in getattr(exc, "problems", ())
+        ]
+        return _document(422, getattr(exc, "kind", "invalid-input"), exc.message, errors), {}
+    if isinstance(exc, HTTPException):
+        status = exc.status_code
+        if status >= 500:
+            _log_unexpected(exc)
+        kind = _STATUS_SLUGS.get(status, "http-error")
+        detail = exc.detail if status < 500 else TITLES["internal-error"]
+        headers = {
+            key: value for key, value in (exc.headers or {}).items() if key.lower() in _KEPT_HEADERS
+        }
+        return _document(status, kind, str(detail), []), headers
+    _log_unexpected(exc)
+    detail = "an unexpected error occurred; the request id identifies it in the service's logs"
+    return _document(500, "internal-error", detail, []), {}
+
+
+def _log_unexpected(exc: BaseException) -> None:
+    # The traceback's frames locate the fault; the message is left out because it may quote
+    # the client's data.
+    frames = traceback.extract_tb(exc.__traceback__)
+    where = [f"{frame.filename}:{frame.lineno} in {frame.name}" for frame in frames[-8:]]
+    _log.error(
+        "unexpected error",
+        extra={"fields": {"error_type": type(exc).__qualname__, "frames": where}},
+    )
+
+
+def handle_exception(request: Request, exc: Exception) -> Response[bytes]:
+    """The application's one exception handler: every error leaves as problem+json."""
+    document, headers = problem_of(exc)
+    return Response(
+        content=msgspec.json.encode(document),
+        status_code=document.status,
+        media_type=PROBLEM_MEDIA_TYPE,
+        headers=headers,
+    )

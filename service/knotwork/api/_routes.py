@@ -1,0 +1,268 @@
+"""Route handlers: read the body, decode and compute off the event loop, answer.
+
+Handlers do no numerics and no validation of their own: the codecs decode, the core computes,
+:mod:`._problems` turns every failure into problem+json.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+from typing import Any
+
+import msgspec
+from litestar import Request, get, post
+from litestar.openapi.datastructures import ResponseSpec
+from litestar.response import Response
+
+from knotwork.codecs import (
+    ARROW_FILE,
+    ARROW_STREAM,
+    PARQUET,
+    CodecError,
+    Fault,
+    InvalidRequest,
+    Limits,
+    Origin,
+    UnsupportedMediaType,
+    decode_assess,
+    decode_batch,
+    decode_table_body,
+    run,
+)
+from knotwork.core import Assessment, KnotworkError
+
+from ._context import current_request
+from ._metrics import COMPUTE_SECONDS
+from ._openapi import (
+    ASSESS_RESPONSES,
+    BATCH_RESPONSES,
+    AssessOperation,
+    BatchOperation,
+    openapi_document,
+)
+from ._problems import ApiError, Located, ProblemDocument, problem_of
+from ._work import WorkPool, read_body
+
+__all__ = ["BatchResponse", "Health", "Readiness", "assess", "assess_batch", "healthz", "readyz"]
+
+JSON = "application/json"
+_TABLE_MEDIA = (ARROW_STREAM, ARROW_FILE, PARQUET)
+_PUBLIC = {"public": True}
+
+
+@dataclass(frozen=True, slots=True)
+class BatchResponse:
+    """The answers to a batch, in the order of its items.
+
+    Attributes
+    ----------
+    results
+        For each item, its assessment or the problem document that says why it has none.
+    """
+
+    results: list[Assessment | ProblemDocument]
+
+
+class Health(msgspec.Struct, frozen=True, kw_only=True):
+    """Liveness: the process answers.
+
+    Attributes
+    ----------
+    status
+        Always ``ok``.
+    """
+
+    status: str = "ok"
+
+
+class Readiness(msgspec.Struct, frozen=True, kw_only=True):
+    """Readiness: start-up has finished and the core has computed once.
+
+    Attributes
+    ----------
+    status
+        ``ready``, or ``starting`` (also while stopping).
+    in_flight
+        Assessments admitted and not finished (running or queued).
+    capacity
+        Computing slots plus queue places; beyond them requests get 503.
+    """
+
+    status: str
+    in_flight: int
+    capacity: int
+
+
+def _media_type(request: Request[Any, Any, Any], accepted: tuple[str, ...]) -> str:
+    media = request.content_type[0].lower()
+    if media in accepted:
+        return media
+    given = media or "none"
+    reason = f"unsupported content type {given}; send one of: {', '.join(accepted)}"
+    raise UnsupportedMediaType(reason, [Fault("", reason)])
+
+
+def _record(route: str, queue_s: float, compute_s: float, **fields: str | int) -> None:
+    COMPUTE_SECONDS.labels(route=route).observe(compute_s)
+    info = current_request()
+    if info is not None:
+        info.timings["queue_ms"] = queue_s * 1000
+        info.timings["compute_ms"] = compute_s * 1000
+        info.fields.update(fields)
+
+
+def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> Assessment:
+    if media == JSON:
+        prepared = decode_assess(body, limits)
+    else:
+        prepared = decode_table_body(body, media, query, limits)
+    try:
+        return run(prepared)
+    except KnotworkError as exc:
+        raise Located(exc, prepared.origin) from None
+
+
+def _assess_many(
+    body: bytearray, limits: Limits, deadline: float, timeout_s: float
+) -> BatchResponse:
+    items = decode_batch(body, limits)
+    results: list[Assessment | ProblemDocument] = []
+    for index, raw in enumerate(items):
+        origin = Origin(base=f"/items/{index}")
+        if time.monotonic() > deadline:
+            late = ApiError(
+                503,
+                "time-limit",
+                f"the batch reached its time limit of {timeout_s:g} s before this item; "
+                "send the rest in another batch",
+            )
+            results.append(problem_of(late)[0])
+            continue
+        try:
+            results.append(run(decode_assess(raw, limits, base=origin.base)))
+        except (CodecError, KnotworkError) as exc:
+            results.append(problem_of(exc, origin)[0])
+        except Exception as exc:  # one item's fault must not sink the others
+            results.append(problem_of(exc)[0])
+    return BatchResponse(results=results)
+
+
+@post(
+    "/v1/assess",
+    operation_class=AssessOperation,
+    summary="Assess a design for collinearity",
+    operation_id="assess",
+    description=(
+        "Diagnostics for one set of predictors: VIF, GVIF, condition indices and "
+        "variance-decomposition proportions, determinant and Farrar-Glauber tests, exact "
+        "dependencies, a removal sequence, and remedies (ridge, principal components). "
+        "Thresholds are rules of thumb; decisions on regulated models follow local rules and "
+        "qualified review."
+    ),
+    responses=ASSESS_RESPONSES,
+    response_description="The assessment.",
+    status_code=200,
+    tags=["assessment"],
+)
+async def assess(request: Request[Any, Any, Any]) -> Assessment:
+    """Decode the body (JSON, Arrow IPC or Parquet), compute off the loop, answer."""
+    state = request.app.state
+    media = _media_type(request, (JSON, *_TABLE_MEDIA))
+    query: bytes = request.scope.get("query_string", b"")
+    if media == JSON and query:
+        reason = "a JSON body carries its options in the body; remove the query parameters"
+        raise InvalidRequest(reason, [Fault("/query", reason)])
+    body = await read_body(request, state.settings.max_body_bytes)
+    pool: WorkPool = state.pool
+    result, queue_s, compute_s = await pool.run(_assess_one, body, media, query, state.limits)
+    _record("/v1/assess", queue_s, compute_s, encoding=media)
+    return result
+
+
+@post(
+    "/v1/assess/batch",
+    operation_class=BatchOperation,
+    summary="Assess many designs",
+    operation_id="assessBatch",
+    description=(
+        "Each item is answered on its own, in order: an assessment, or a problem document "
+        "for an item that cannot be used (its pointers start with /items/<index>)."
+    ),
+    responses=BATCH_RESPONSES,
+    response_description="One result per item, in order: an assessment or a problem document.",
+    status_code=200,
+    tags=["assessment"],
+)
+async def assess_batch(request: Request[Any, Any, Any]) -> BatchResponse:
+    """Answer every item of a batch; one bad item does not fail the others."""
+    state = request.app.state
+    _media_type(request, (JSON,))
+    if request.scope.get("query_string"):
+        reason = "a batch carries its options in each item; remove the query parameters"
+        raise InvalidRequest(reason, [Fault("/query", reason)])
+    body = await read_body(request, state.settings.max_body_bytes)
+    pool: WorkPool = state.pool
+    timeout_s = pool.timeout_s
+    deadline = time.monotonic() + timeout_s
+    # The items stop starting at the deadline; the pool's own limit, a little later, only
+    # catches an item that runs far past it.
+    result, queue_s, compute_s = await pool.run(
+        _assess_many, body, state.limits, deadline, timeout_s, timeout_s=timeout_s * 1.5 + 1
+    )
+    _record("/v1/assess/batch", queue_s, compute_s, items=len(result.results))
+    return result
+
+
+@get(
+    "/healthz",
+    opt=_PUBLIC,
+    tags=["operation"],
+    summary="Liveness",
+    operation_id="healthz",
+    security=[{}],
+    response_description="The process answers.",
+)
+async def healthz() -> Health:
+    """The process is alive (no work is done)."""
+    return Health()
+
+
+@get(
+    "/readyz",
+    opt=_PUBLIC,
+    tags=["operation"],
+    summary="Readiness",
+    operation_id="readyz",
+    security=[{}],
+    response_description="Ready: start-up and the warm-up assessment have finished.",
+    responses={
+        503: ResponseSpec(
+            data_container=Readiness,
+            generate_examples=False,
+            description="Not ready yet (starting) or no longer (stopping).",
+        )
+    },
+)
+async def readyz(request: Request[Any, Any, Any]) -> Response[Readiness]:
+    """200 once start-up (including one warm-up assessment) has finished, else 503."""
+    state = request.app.state
+    pool: WorkPool = state.pool
+    ready = bool(state.get("ready"))
+    body = Readiness(
+        status="ready" if ready else "starting",
+        in_flight=pool.in_flight,
+        capacity=pool.concurrency + pool.queue,
+    )
+    return Response(body, status_code=200 if ready else 503)
+
+
+@get(
+    "/openapi.json",
+    opt=_PUBLIC,
+    include_in_schema=False,
+    media_type="application/vnd.oai.openapi+json",
+)
+async def openapi_json(request: Request[Any, Any, Any]) -> bytes:
+    """The OpenAPI 3.1 document."""
+    return msgspec.json.encode(openapi_document(request.app))

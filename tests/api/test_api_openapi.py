@@ -1,0 +1,120 @@
+"""The committed OpenAPI document is the generated one, and it documents the whole contract."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+import msgspec
+import pytest
+
+from knotwork.api.openapi import render
+from knotwork.codecs import AssessRequest, BatchRequest
+
+COMMITTED = Path(__file__).resolve().parents[2] / "openapi" / "openapi.json"
+
+
+@pytest.fixture(scope="module")
+def document() -> dict[str, Any]:
+    return json.loads(render())
+
+
+def test_committed_document_is_up_to_date() -> None:
+    assert COMMITTED.read_text(encoding="utf-8") == render(), (
+        "openapi/openapi.json is out of date: run `python -m knotwork.api.openapi`"
+    )
+
+
+def _refs(node: Any) -> list[str]:
+    if isinstance(node, dict):
+        found = [node["$ref"]] if isinstance(node.get("$ref"), str) else []
+        return found + [r for value in node.values() for r in _refs(value)]
+    if isinstance(node, list):
+        return [r for value in node for r in _refs(value)]
+    return []
+
+
+def test_every_reference_resolves(document: dict[str, Any]) -> None:
+    schemas = document["components"]["schemas"]
+    for ref in _refs(document):
+        assert ref.startswith("#/components/schemas/"), ref
+        assert ref.rsplit("/", 1)[1] in schemas, ref
+
+
+def test_fixed_routes_are_documented(document: dict[str, Any]) -> None:
+    assert document["openapi"] == "3.1.0"
+    assert set(document["paths"]) >= {
+        "/v1/assess",
+        "/v1/assess/batch",
+        "/healthz",
+        "/readyz",
+        "/metrics",
+    }
+
+
+def test_assess_takes_json_arrow_and_parquet(document: dict[str, Any]) -> None:
+    body = document["paths"]["/v1/assess"]["post"]["requestBody"]
+    assert set(body["content"]) == {
+        "application/json",
+        "application/vnd.apache.arrow.stream",
+        "application/vnd.apache.arrow.file",
+        "application/vnd.apache.parquet",
+    }
+    parameters = {p["name"] for p in document["paths"]["/v1/assess"]["post"]["parameters"]}
+    assert parameters == {
+        "threshold",
+        "protect",
+        "intercept",
+        "missing",
+        "repair",
+        "sections",
+        "response",
+        "weights",
+        "ridge_grid",
+        "components_rule",
+        "components_limit",
+    }
+
+
+def test_request_examples_fit_the_decoders(document: dict[str, Any]) -> None:
+    for path, kind in (("/v1/assess", AssessRequest), ("/v1/assess/batch", BatchRequest)):
+        media = document["paths"][path]["post"]["requestBody"]["content"]["application/json"]
+        assert media["examples"]
+        for example in media["examples"].values():
+            msgspec.json.decode(json.dumps(example["value"]), type=kind)
+
+
+def test_errors_are_documented_as_problems(document: dict[str, Any]) -> None:
+    for path in ("/v1/assess", "/v1/assess/batch"):
+        responses = document["paths"][path]["post"]["responses"]
+        assert {"400", "401", "403", "413", "415", "503"} <= set(responses)
+        for status, response in responses.items():
+            if status.startswith(("4", "5")):
+                content = response["content"]["application/problem+json"]
+                assert content["schema"] == {"$ref": "#/components/schemas/ProblemDocument"}
+                assert content["examples"], (path, status)
+        assert "Retry-After" in responses["503"]["headers"]
+        assert "WWW-Authenticate" in responses["401"]["headers"]
+    assert "422" in document["paths"]["/v1/assess"]["post"]["responses"]
+
+
+def test_answer_has_a_computed_example(document: dict[str, Any]) -> None:
+    answer = document["paths"]["/v1/assess"]["post"]["responses"]["200"]["content"]
+    example = answer["application/json"]["examples"]["correlation"]["value"]
+    assert example["input_kind"] == "correlation"
+    assert [v["name"] for v in example["variables"]] == [
+        "rainfall_mm",
+        "irrigation_l",
+        "soil_moisture",
+        "sun_hours",
+    ]
+
+
+def test_result_fields_carry_their_meaning(document: dict[str, Any]) -> None:
+    schemas = document["components"]["schemas"]
+    for name in ("Assessment", "VariableInflation", "ProblemDocument"):
+        schema = schemas[name]
+        assert schema["description"]
+        for field, prop in schema["properties"].items():
+            assert prop.get("description"), f"{name}.{field} has no description"
