@@ -1,0 +1,571 @@
+"""Ridge trace and the published choices of the ridge constant k, on the correlation scale."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.optimize
+
+from ._dependencies import INVOLVED_TOL, Spectrum
+from ._errors import InputError, OptionError, Problem
+
+#: The scale every k is stated on: the predictors' correlation matrix (Z'Z = R).
+K_SCALE = "correlation"
+
+#: Number of points in the default grid (k = 0 and this many minus one log-spaced values).
+GRID_POINTS = 100
+
+#: The default grid runs from ``lambda_ref / GRID_SPAN`` (the smallest eigen-direction shrunk by
+#: about 1%) to ``GRID_SPAN * lambda_ref`` (shrunk to about 1%), or further to ``1/(4 T)``.
+GRID_SPAN = 100.0
+
+#: Relative width at which the bisection for the VIF-threshold k stops.
+BISECTION_RTOL = 1e-10
+
+HKB = "hoerl_kennard_baldwin"
+LAWLESS_WANG = "lawless_wang"
+GCV = "gcv"
+VIF_THRESHOLD = "vif_threshold"
+
+_REFERENCES = {
+    HKB: "Hoerl, Kennard & Baldwin (1975), Communications in Statistics 4(2), 105-123",
+    LAWLESS_WANG: "Lawless & Wang (1976), Communications in Statistics A5(4), 307-323",
+    GCV: "Golub, Heath & Wahba (1979), Technometrics 21(2), 215-223",
+    VIF_THRESHOLD: "smallest k with every ridge VIF (Marquardt 1970) at or below the threshold",
+}
+
+
+@dataclass(frozen=True, slots=True)
+class RidgePoint:
+    """The ridge fit at one value of k.
+
+    Attributes
+    ----------
+    k
+        The ridge constant on the correlation scale.
+    vif
+        Ridge VIFs, diag((R + kI)^-1 R (R + kI)^-1), in variable order; they can fall below 1.
+        At k = 0 they are the ordinary VIFs, None for a variable in an exact dependency.
+    max_vif
+        The largest of them (None when one is not finite).
+    effective_df
+        Effective number of parameters besides the intercept, sum_i l_i / (l_i + k).
+    coefficients
+        Standardized coefficients b(k) = (R + kI)^-1 r_xy in variable order (None without a
+        response, and at k = 0 when an exact dependency makes them not unique).
+    r_squared
+        Share of the response's sum of squares the fit explains, 1 - RSS(k)/SST.
+    residual_variance
+        Residual variance as a share of the response's variance: RSS(k)/(n - 1 - edf) divided by
+        SST/(n - 1) (n in place of n - 1 without intercept); 1 - adjusted R^2 at k = 0.
+    original_coefficients
+        Coefficients in the variables' own units, b_j sd_y / sd_j (None unless standard
+        deviations are given).
+    original_intercept
+        mean_y - sum_j beta_j mean_j (None unless means are given, or without intercept).
+    """
+
+    k: float
+    vif: tuple[float | None, ...]
+    max_vif: float | None
+    effective_df: float
+    coefficients: tuple[float, ...] | None
+    r_squared: float | None
+    residual_variance: float | None
+    original_coefficients: tuple[float, ...] | None
+    original_intercept: float | None
+
+
+@dataclass(frozen=True, slots=True)
+class RidgeChoice:
+    """One published rule for choosing k, and where it lands.
+
+    Attributes
+    ----------
+    rule
+        ``hoerl_kennard_baldwin``, ``lawless_wang``, ``gcv`` or ``vif_threshold``.
+    k
+        The chosen k on the correlation scale (None when the rule is not defined here; see
+        ``note``).
+    max_vif
+        Largest ridge VIF at that k.
+    effective_df
+        Effective number of parameters at that k.
+    r_squared
+        Share of the response's sum of squares explained at that k (None without a response).
+    coefficients
+        Standardized coefficients at that k (None without a response).
+    original_coefficients
+        The same in the variables' own units (None unless standard deviations are given).
+    reference
+        Where the rule comes from.
+    note
+        Why ``k`` is None, or how to read it; None otherwise.
+    """
+
+    rule: str
+    k: float | None
+    max_vif: float | None
+    effective_df: float | None
+    r_squared: float | None
+    coefficients: tuple[float, ...] | None
+    original_coefficients: tuple[float, ...] | None
+    reference: str
+    note: str | None
+
+
+@dataclass(frozen=True, slots=True)
+class Ridge:
+    """Ridge trace over a grid of k and the choices of k.
+
+    Attributes
+    ----------
+    k_scale
+        ``"correlation"``: every k is for Z'Z = R (unit-length centred columns).
+    unit_variance_factor
+        Multiply a k by this to get the penalty for columns scaled to unit variance
+        (Z'Z = (n - 1) R, so n - 1; n without intercept), e.g. scikit-learn's ``alpha``.
+    threshold
+        The VIF threshold used by the ``vif_threshold`` rule (a rule of thumb).
+    grid_rule
+        How the grid was made (the default rule, or ``"given"``).
+    trace
+        The fit at every k of the grid, in grid order.
+    choices
+        The four rules, in the order above.
+    residual_df
+        n - p - 1 (n - p without intercept): the degrees of freedom of the OLS residual variance
+        s^2 = (1 - R^2) / residual_df used by the Hoerl-Kennard-Baldwin and Lawless-Wang rules.
+    notes
+        How to read the result.
+    """
+
+    k_scale: str
+    unit_variance_factor: float
+    threshold: float
+    grid_rule: str
+    trace: tuple[RidgePoint, ...]
+    choices: tuple[RidgeChoice, ...]
+    residual_df: float
+    notes: tuple[str, ...]
+
+
+_NOTES = (
+    "k is on the correlation scale (Z'Z = R); for predictors and response scaled to unit "
+    "variance the same fit has penalty (n - 1) k (n k without intercept).",
+    "Ridge coefficients are shrunk toward zero on purpose: they are biased, and ordinary "
+    "least-squares standard errors and tests do not apply to them.",
+    "Ridge VIFs measure the variance of the shrunk coefficients relative to an orthogonal "
+    "design; they can fall below 1 and are not the same quantity as ordinary VIFs.",
+    "The VIF threshold is a rule of thumb from common practice, and no choice of k is "
+    "authoritative; decisions on regulated models follow local rules and qualified review.",
+)
+
+
+class _Eigen:
+    """The eigen-decomposition in the form every ridge quantity uses, null directions zeroed."""
+
+    def __init__(self, m: np.ndarray, spectrum: Spectrum | None, r: np.ndarray | None) -> None:
+        spec = spectrum if spectrum is not None else Spectrum.of(m)
+        p = spec.values.shape[0]
+        self.p = p
+        self.null_dim = spec.null_dim
+        null = np.arange(p) >= p - spec.null_dim
+        # In exact arithmetic the null eigenvalues are 0 and r_xy has no component along them
+        # (it lies in the span of the predictors), so they contribute nothing for k > 0.
+        self.l = np.where(null, 0.0, spec.values)
+        self.v = spec.vectors
+        self.vv = spec.vectors**2
+        self.pos = self.l > 0.0
+        self.lmax = float(self.l[0]) if p else 1.0
+        self.lref = float(self.l[self.pos].min()) if self.pos.any() else 1.0
+        if spec.null_dim:
+            self.involved = np.linalg.norm(spec.null_basis, axis=1) >= INVOLVED_TOL
+        else:
+            self.involved = np.zeros(p, dtype=bool)
+        self.c: np.ndarray | None = None
+        self.c2: np.ndarray | None = None
+        if r is not None:
+            c = spec.vectors.T @ r
+            c[null] = 0.0
+            self.c = c
+            self.c2 = c * c
+
+    def weights(self, ks: np.ndarray) -> np.ndarray:
+        """l_i / (l_i + k)^2 for every eigenvalue and k, shape (p, len(ks)); 0 on null ones."""
+        lam = self.l[:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            w = lam / (lam + ks[None, :]) ** 2
+        return np.where(self.pos[:, None], w, 0.0)
+
+    def vifs(self, ks: np.ndarray) -> np.ndarray:
+        return self.vv @ self.weights(ks)
+
+    def max_vif(self, k: float) -> float:
+        return float(np.max(self.vifs(np.array([k]))))
+
+    def edf(self, ks: np.ndarray) -> np.ndarray:
+        lam = self.l[:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            f = lam / (lam + ks[None, :])
+        return np.where(self.pos[:, None], f, 0.0).sum(axis=0)
+
+    def rss(self, ks: np.ndarray) -> np.ndarray:
+        """Residual sum of squares as a share of SST: 1 - sum c_i^2 (l_i + 2k) / (l_i + k)^2."""
+        assert self.c2 is not None
+        lam = self.l[:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            g = (lam + 2 * ks[None, :]) / (lam + ks[None, :]) ** 2
+        g = np.where(self.pos[:, None], g, 0.0)
+        return 1.0 - self.c2 @ g
+
+    def coefficients(self, ks: np.ndarray) -> np.ndarray:
+        assert self.c is not None
+        lam = self.l[:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            g = self.c[:, None] / (lam + ks[None, :])
+        g = np.where(self.pos[:, None], g, 0.0)
+        return self.v @ g
+
+
+def default_grid(
+    eigenvalues: np.ndarray, threshold: float, points: int = GRID_POINTS
+) -> np.ndarray:
+    """k = 0, then log-spaced values from lambda_ref / 100 to max(100 lambda_ref, 1 / (4 T)).
+
+    ``lambda_ref`` is the smallest eigenvalue of R that is not numerically zero; the
+    direction belonging to it keeps about 99% of its length at the low end and about 1% at
+    100 lambda_ref. Every ridge VIF is at most 1/(4k) (since l/(l + k)^2 <= 1/(4k)), so the grid
+    reaches a k where all of them are under the threshold T.
+    """
+    lam = eigenvalues[eigenvalues > 0]
+    lref = float(lam.min()) if lam.size else 1.0
+    lo = lref / GRID_SPAN
+    hi = max(GRID_SPAN * lref, 1.0 / (4.0 * threshold))
+    return np.concatenate([[0.0], np.geomspace(lo, hi, points - 1)])
+
+
+def _opt(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def _smallest_k_under(eig: _Eigen, threshold: float) -> tuple[float | None, str | None]:
+    """Smallest k with every ridge VIF at or below the threshold, by bisection in log k.
+
+    The largest ridge VIF decreases in k (each term l/(l + k)^2 does), and is at most 1/(4k),
+    so ``hi = 1/(4T)`` always satisfies the bound; ``lo`` is found by stepping down by decades.
+    """
+    if eig.null_dim == 0 and eig.max_vif(0.0) <= threshold:
+        return 0.0, "every VIF is already at or below the threshold without shrinkage"
+    hi = 1.0 / (4.0 * threshold)
+    lo = hi
+    floor = eig.lref * 1e-12
+    while eig.max_vif(lo) <= threshold:
+        hi = lo
+        lo /= 10.0
+        if lo < floor:
+            return None, (
+                "every k > 0 brings the ridge VIFs under the threshold (they tend to those of "
+                "the pseudo-inverse as k falls, because of the exact dependency), but at k = 0 "
+                "they are not finite: there is no smallest k"
+            )
+    while hi / lo - 1.0 > BISECTION_RTOL:
+        mid = math.sqrt(lo * hi)
+        if eig.max_vif(mid) <= threshold:
+            hi = mid
+        else:
+            lo = mid
+    return hi, None
+
+
+def _gcv(eig: _Eigen, dof: float) -> tuple[float | None, str | None]:
+    """Minimize V(k) = RSS(k) / (n' - edf(k))^2 over k >= 0 (n' = n - 1, or n without intercept).
+
+    A log grid from lambda_ref * 1e-6 to lambda_max * 1e4 (401 points) and k = 0 locates the
+    minimum; a bounded Brent search in log k between the neighbours of the best grid point
+    refines it.
+    """
+
+    def v(ks: np.ndarray) -> np.ndarray:
+        den = dof - eig.edf(ks)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = eig.rss(ks) / den**2
+        return np.where(den > 0, out, np.inf)
+
+    ks = np.geomspace(eig.lref * 1e-6, eig.lmax * 1e4, 401)
+    values = v(ks)
+    v0 = float(v(np.array([0.0]))[0])
+    i = int(np.argmin(values))
+    if not math.isfinite(values[i]):
+        return None, "the residual degrees of freedom are not positive anywhere"
+    if v0 <= values[i]:
+        return 0.0, "GCV is smallest without shrinkage"
+    if i == len(ks) - 1:
+        return float(ks[-1]), (
+            "GCV keeps falling as k grows: the response is barely explained by the predictors; "
+            "k is the upper end of the search"
+        )
+    t_lo = math.log(ks[max(i - 1, 0)])
+    t_hi = math.log(ks[i + 1])
+    res = scipy.optimize.minimize_scalar(
+        lambda t: float(v(np.array([math.exp(t)]))[0]),
+        bounds=(t_lo, t_hi),
+        method="bounded",
+        options={"xatol": 1e-10},
+    )
+    k = math.exp(float(res.x))
+    if float(res.fun) > values[i]:  # pragma: no cover - Brent returns at least as good a point
+        k = float(ks[i])
+    return k, None
+
+
+def _validate_grid(grid: Sequence[float]) -> np.ndarray:
+    values = np.asarray(list(grid), dtype=float)
+    problems = [
+        Problem(f"/ridge/grid/{i}", f"k must be a finite number >= 0, got {v!r}")
+        for i, v in enumerate(values.tolist())
+        if not (math.isfinite(v) and v >= 0)
+    ]
+    if values.size == 0:
+        problems.append(Problem("/ridge/grid", "the grid needs at least one value of k"))
+    if problems:
+        raise OptionError("invalid ridge grid", problems)
+    return values
+
+
+def ridge_analysis(
+    M: np.ndarray,
+    names: Sequence[str],
+    *,
+    n: float,
+    threshold: float,
+    grid: Sequence[float] | None = None,
+    r_xy: np.ndarray | None = None,
+    sds: np.ndarray | None = None,
+    response_sd: float | None = None,
+    means: np.ndarray | None = None,
+    response_mean: float | None = None,
+    intercept: bool = True,
+    spectrum: Spectrum | None = None,
+) -> Ridge:
+    """Ridge trace (VIFs, effective df, coefficients) and the published choices of k.
+
+    Parameters
+    ----------
+    M
+        The predictors' correlation matrix (p, p), or their cosine matrix without intercept.
+    names
+        Predictor names in matrix order.
+    n
+        Number of observations (or sum of weights).
+    threshold
+        VIF threshold of the ``vif_threshold`` rule (a rule of thumb: 5 or 10).
+    grid
+        Values of k on the correlation scale; None for the default grid (see
+        :func:`default_grid`).
+    r_xy
+        Correlations of the predictors with the response; without it only VIFs, effective df
+        and the ``vif_threshold`` choice are computed.
+    sds, response_sd
+        Standard deviations of the predictors and the response (root mean squares without
+        intercept), for coefficients in original units.
+    means, response_mean
+        Means, for the original-scale intercept (with intercept only).
+    intercept
+        Whether the model has an intercept (residual df n - p - 1, else n - p).
+    spectrum
+        The eigen-decomposition of ``M`` when already computed.
+
+    Returns
+    -------
+    Ridge
+
+    Raises
+    ------
+    OptionError
+        A grid value that is negative or not finite; a threshold below 1.
+
+    Notes
+    -----
+    With :math:`R = V \\Lambda V^\\top`, :math:`c = V^\\top r_{xy}` and :math:`\\lambda_i` the
+    eigenvalues (Hoerl & Kennard 1970; Marquardt 1970):
+
+    .. math::
+
+        b(k) = (R + kI)^{-1} r_{xy} = V\\,\\mathrm{diag}(1/(\\lambda_i + k))\\,c, \\qquad
+        \\mathrm{VIF}_j(k) = [(R + kI)^{-1} R (R + kI)^{-1}]_{jj}
+            = \\sum_i v_{ji}^2 \\lambda_i / (\\lambda_i + k)^2,
+
+    effective df :math:`\\sum_i \\lambda_i/(\\lambda_i + k)`, and the residual sum of squares as a
+    share of the total :math:`1 - \\sum_i c_i^2 (\\lambda_i + 2k)/(\\lambda_i + k)^2`. Original
+    units: :math:`\\beta_j = b_j s_y / s_j`, intercept :math:`\\bar y - \\sum_j \\beta_j \\bar x_j`.
+    Choices of k, with :math:`b = R^{-1} r_{xy}`, :math:`R_y^2 = r_{xy}^\\top b` and
+    :math:`s^2 = (1 - R_y^2)/(n - p - 1)`: Hoerl-Kennard-Baldwin :math:`p s^2 / b^\\top b`;
+    Lawless-Wang :math:`p s^2 / R_y^2`; generalized cross-validation minimizes
+    :math:`\\mathrm{RSS}(k) / (n - 1 - \\mathrm{edf}(k))^2` (Golub, Heath & Wahba 1979; no rows
+    needed); ``vif_threshold`` is the smallest k with every ridge VIF at or below the
+    threshold. Without intercept, n - 1 becomes n and n - p - 1 becomes n - p. With an exact
+    dependency the null directions contribute nothing (the limit is the minimum-norm fit);
+    the rules needing the OLS fit are then not defined.
+
+    Verification: Longley (statsmodels.datasets): k_HKB 0.000400815, k_LW 0.00302769 and the
+    ridge VIFs at k = 0.01 (17.1640, 3.45422, 2.73104, 2.10435, 13.7889, 9.99575) to 1e-6
+    (methods.md check values); coefficients equal scikit-learn's ``Ridge`` on standardized
+    data with ``alpha = (n - 1) k`` to 1e-8 (diabetes and Longley); VIFs, effective df and
+    residuals equal direct matrix formulas (inverse of R + kI) on random designs; GCV equals a
+    brute-force minimization of the formula computed from rows (hat-matrix trace).
+
+    Implementation: one symmetric eigen-decomposition (shared with the other diagnostics),
+    then every k costs O(p^2): the whole trace is two matrix products with the p x m matrix
+    of eigen-weights. The VIF-threshold k is found by bisection in log k to a relative
+    width of 1e-10 (about 40 evaluations of O(p^2)); GCV by a grid and a bounded Brent search.
+
+    References
+    ----------
+    .. [1] Hoerl, A. E. & Kennard, R. W. (1970). Ridge regression: biased estimation for
+       nonorthogonal problems. Technometrics 12(1), 55-67.
+    .. [2] Marquardt, D. W. (1970). Generalized inverses, ridge regression, biased linear
+       estimation, and nonlinear estimation. Technometrics 12, 591-612.
+    .. [3] Hoerl, A. E., Kennard, R. W. & Baldwin, K. F. (1975). Ridge regression: some
+       simulations. Communications in Statistics 4(2), 105-123 (details from memory).
+    .. [4] Lawless, J. F. & Wang, P. (1976). A simulation study of ridge and other regression
+       estimators. Communications in Statistics A5(4), 307-323 (details from memory).
+    .. [5] Golub, G. H., Heath, M. & Wahba, G. (1979). Generalized cross-validation as a
+       method for choosing a good ridge parameter. Technometrics 21(2), 215-223.
+    """
+    m = np.asarray(M, dtype=float)
+    p = len(names)
+    if m.shape != (p, p):
+        raise InputError.at("/matrix", f"expected a {p} x {p} matrix, got shape {m.shape}")
+    if not (math.isfinite(threshold) and threshold >= 1.0):
+        raise OptionError.at(
+            "/threshold", f"the threshold must be a finite number >= 1, got {threshold}"
+        )
+    r = None if r_xy is None else np.asarray(r_xy, dtype=float)
+    eig = _Eigen(m, spectrum, r)
+    nu = 1.0 if intercept else 0.0
+    dof = float(n) - nu
+    residual_df = dof - p
+    if grid is None:
+        ks = default_grid(eig.l, threshold)
+        grid_rule = (
+            f"k = 0, then {GRID_POINTS - 1} values log-spaced from lambda_min/{GRID_SPAN:g} to "
+            f"max({GRID_SPAN:g} lambda_min, 1/(4 threshold)), lambda_min the smallest non-zero "
+            "eigenvalue of the matrix"
+        )
+    else:
+        ks = _validate_grid(grid)
+        grid_rule = "given"
+    scale = None
+    if sds is not None and response_sd is not None:
+        scale = float(response_sd) / np.asarray(sds, dtype=float)
+    means_a = None if means is None else np.asarray(means, dtype=float)
+
+    def original(b: np.ndarray) -> tuple[tuple[float, ...] | None, float | None]:
+        if scale is None:
+            return None, None
+        beta = b * scale
+        icpt = None
+        if intercept and means_a is not None and response_mean is not None:
+            icpt = float(response_mean - beta @ means_a)
+        return tuple(beta.tolist()), icpt
+
+    vifs = eig.vifs(ks)  # (p, m)
+    edf = eig.edf(ks)
+    zero_aliased = eig.null_dim > 0
+    have_y = eig.c is not None
+    if have_y:
+        coefs = eig.coefficients(ks)
+        rss = eig.rss(ks)
+    trace = []
+    for i, k in enumerate(ks.tolist()):
+        col = vifs[:, i]
+        vif_list: list[float | None] = col.tolist()
+        max_vif: float | None = float(col.max())
+        if k == 0.0 and zero_aliased:
+            vif_list = [None if a else v for v, a in zip(vif_list, eig.involved, strict=True)]
+            max_vif = None
+        b = coef_t = orig = icpt = r2 = resvar = None
+        if have_y:
+            r2 = float(1.0 - rss[i])
+            den = dof - edf[i]
+            resvar = float(rss[i] * dof / den) if den > 0 else None
+            if not (k == 0.0 and zero_aliased):
+                b = coefs[:, i]
+                coef_t = tuple(b.tolist())
+                orig, icpt = original(b)
+        trace.append(
+            RidgePoint(
+                k=float(k),
+                vif=tuple(vif_list),
+                max_vif=max_vif,
+                effective_df=float(edf[i]),
+                coefficients=coef_t,
+                r_squared=r2,
+                residual_variance=resvar,
+                original_coefficients=orig,
+                original_intercept=icpt,
+            )
+        )
+
+    def choice(rule: str, k: float | None, note: str | None) -> RidgeChoice:
+        if k is None:
+            return RidgeChoice(rule, None, None, None, None, None, None, _REFERENCES[rule], note)
+        kk = np.array([k])
+        mv = None if (k == 0.0 and zero_aliased) else float(eig.vifs(kk).max())
+        r2 = b_t = orig = None
+        if have_y:
+            r2 = float(1.0 - eig.rss(kk)[0])
+            if not (k == 0.0 and zero_aliased):
+                b = eig.coefficients(kk)[:, 0]
+                b_t = tuple(b.tolist())
+                orig, _ = original(b)
+        return RidgeChoice(
+            rule, float(k), mv, float(eig.edf(kk)[0]), r2, b_t, orig, _REFERENCES[rule], note
+        )
+
+    choices = []
+    if not have_y:
+        none = "needs the response's correlations with the predictors"
+        choices += [choice(HKB, None, none), choice(LAWLESS_WANG, None, none)]
+        choices.append(choice(GCV, None, none))
+    else:
+        assert eig.c2 is not None
+        if zero_aliased:
+            why = "not defined: an exact dependency leaves the least-squares fit not unique"
+            choices += [choice(HKB, None, why), choice(LAWLESS_WANG, None, why)]
+        elif residual_df <= 0:
+            why = "not defined: no residual degrees of freedom (n - p - 1 <= 0)"
+            choices += [choice(HKB, None, why), choice(LAWLESS_WANG, None, why)]
+        else:
+            ry2 = float(np.sum(eig.c2 / eig.l))
+            bb = float(np.sum(eig.c2 / eig.l**2))
+            s2 = (1.0 - ry2) / residual_df
+            k_hkb = p * s2 / bb if bb > 0 else math.inf
+            k_lw = p * s2 / ry2 if ry2 > 0 else math.inf
+            zero = "not defined: the response is uncorrelated with every predictor"
+            choices.append(
+                choice(HKB, k_hkb, None) if math.isfinite(k_hkb) else choice(HKB, None, zero)
+            )
+            choices.append(
+                choice(LAWLESS_WANG, k_lw, None)
+                if math.isfinite(k_lw)
+                else choice(LAWLESS_WANG, None, zero)
+            )
+        k_gcv, note = _gcv(eig, dof)
+        choices.append(choice(GCV, k_gcv, note))
+    k_vif, note = _smallest_k_under(eig, float(threshold))
+    choices.append(choice(VIF_THRESHOLD, k_vif, note))
+    return Ridge(
+        k_scale=K_SCALE,
+        unit_variance_factor=dof,
+        threshold=float(threshold),
+        grid_rule=grid_rule,
+        trace=tuple(trace),
+        choices=tuple(choices),
+        residual_df=float(residual_df),
+        notes=_NOTES,
+    )
