@@ -58,6 +58,13 @@ fail() {
 
 state=""
 cid=""
+# podman and buildah keep two small things outside any configurable storage: a blob-info cache
+# (/var/lib/containers/cache) and netavark's run folder (/run/containers). What of them did not
+# exist before is removed again at the end.
+leftovers=()
+for d in /var/lib/containers /run/containers; do
+    [ -e "$d" ] || leftovers+=("$d")
+done
 cleanup() {
     local rc=$?
     set +e
@@ -78,6 +85,7 @@ cleanup() {
                 umount "$m" 2>/dev/null || umount -l "$m"
             done
             rm -rf "$state"
+            [ ${#leftovers[@]} -eq 0 ] || rm -rf "${leftovers[@]}"
             echo "-- cleanup (storage removed): $(fmt_s $(($(now_ms) - t0)))"
         fi
     fi
@@ -132,7 +140,9 @@ make_state() {
     else
         state=$(mktemp -d /tmp/knotwork-image-check.XXXXXX)
     fi
-    mkdir -p "$state"/{graph,run,libpod,networks,volumes,tmp}
+    # libpod's folder gets a short name: slirp4netns's socket path in it (a 64-digit container
+    # id follows) must stay under 108 characters.
+    mkdir -p "$state"/{graph,run,l,networks,volumes,tmp}
     cat >"$state/storage.conf" <<EOF
 [storage]
 driver = "overlay"
@@ -144,13 +154,15 @@ EOF
     cat >"$state/containers.conf" <<EOF
 [containers]
 default_ulimits = ["nofile=20000:20000", "nproc=32768:32768"]
+# No network unless asked for: the one container that needs one gets slirp4netns (below).
+netns = "none"
 
 [engine]
 runtime = "runc"
 cgroup_manager = "cgroupfs"
 events_logger = "file"
 events_logfile_path = "$state/events.log"
-tmp_dir = "$state/libpod"
+tmp_dir = "$state/l"
 volume_path = "$state/volumes"
 
 [network]
@@ -198,7 +210,7 @@ make_base() {
         --change 'ENV PATH=/usr/local/sbin:/usr/local/bin:/usr/sbin:/usr/bin:/sbin:/bin' \
         --change 'ENV LANG=C.UTF-8' --change 'CMD ["/bin/bash"]' - "$base_image" >/dev/null
     rm -rf "$rootfs"
-    podman run --rm "$base_image" python3 --version
+    podman run --rm --no-healthcheck "$base_image" python3 --version
 }
 
 build_image() {
@@ -229,11 +241,12 @@ image_facts() {
     [ "${user%%:*}" = "$image_uid" ] || fail "image user is '$user', expected $image_uid"
     podman image inspect --format '{{json .Config.Healthcheck}}' "$app_image" | grep -q healthz ||
         fail "image has no HEALTHCHECK against /healthz"
-    if podman run --rm --entrypoint sh "$app_image" -c 'command -v curl || command -v wget'; then
+    if podman run --rm --no-healthcheck --entrypoint sh "$app_image" \
+        -c 'command -v curl || command -v wget'; then
         fail "curl or wget in the image"
     fi
     local venv
-    venv=$(podman run --rm "$app_image" python -c 'import importlib.metadata as m
+    venv=$(podman run --rm --no-healthcheck "$app_image" python -c 'import importlib.metadata as m
 names = sorted(d.metadata["Name"].lower() for d in m.distributions())
 bad = [n for n in names if n.startswith(("nvidia", "cuda", "torch", "cupy", "pip", "setuptools"))]
 print(len(names), "distributions", "bad:" + ",".join(bad) if bad else "clean")')
@@ -253,16 +266,20 @@ start_container() {
     printf 'old-%s\n%s\n' "$(head -c 12 /dev/urandom | od -An -tx1 | tr -d ' \n')" "$token" \
         >"$state/tokens"
     chmod 0644 "$state/tokens"
+    # User-mode networking (slirp4netns) publishes the port on the host's loopback without
+    # touching the host's firewall or creating a bridge, so nothing outlives the check.
+    # podman reports (harmlessly) that it cannot reach systemd to schedule the image's health
+    # check; the check is run by hand below instead. That noise goes to run.err.
     cid=$(podman run -d --read-only --read-only-tmpfs=false \
         --tmpfs /tmp:rw,nosuid,nodev,size=64m \
         --cap-drop=ALL --security-opt=no-new-privileges \
-        -p "127.0.0.1:$port:8000" \
+        --network slirp4netns:port_handler=slirp4netns -p "127.0.0.1:$port:8000" \
         -v "$state/tokens:/run/secrets/knotwork_tokens:ro" \
         -e KNOTWORK_TOKENS_FILE=/run/secrets/knotwork_tokens \
         -e KNOTWORK_WORKERS="$workers" \
         -e PROMETHEUS_MULTIPROC_DIR=/tmp/knotwork-metrics \
         -e KNOTWORK_LOG_LEVEL=info \
-        "$app_image")
+        "$app_image" 2>"$state/run.err") || { cat "$state/run.err"; fail "podman run"; }
     echo "container ${cid:0:12} on 127.0.0.1:$port (workers $workers)"
 }
 
@@ -282,6 +299,21 @@ wait_healthy() {
     done
     podman logs "$cid" 2>&1 | tail -30
     fail "no healthy answer from /healthz within 60 s"
+}
+
+wait_ready() {
+    local i code
+    # Each worker warms up before it reports ready; the load balancer would wait for this too.
+    for i in $(seq 1 120); do
+        code=$(curl -s -o /dev/null -w '%{http_code}' --max-time 2 "http://127.0.0.1:$port/readyz" || true)
+        if [ "$code" = 200 ]; then
+            echo "ready after $i tries"
+            return
+        fi
+        sleep 0.5
+    done
+    podman logs "$cid" 2>&1 | tail -30
+    fail "/readyz did not answer 200 within 60 s (last: $code)"
 }
 
 # request NAME EXPECTED_STATUS EXPECTED_TYPE_PREFIX curl-args...
@@ -351,6 +383,19 @@ check_inside() {
     else
         fail "the image's HEALTHCHECK command failed"
     fi
+    # Resident memory of each process after the requests: the per-worker baseline for sizing.
+    podman exec "$cid" python -c 'import os
+for pid in sorted((d for d in os.listdir("/proc") if d.isdigit()), key=int):
+    if int(pid) == os.getpid():
+        continue
+    try:
+        cmd = open(f"/proc/{pid}/cmdline", "rb").read().replace(b"\0", b" ").decode()[:60]
+        mem = dict(l.split(":", 1) for l in open(f"/proc/{pid}/status"))
+    except OSError:
+        continue
+    if "VmRSS" in mem and "python" in cmd:
+        rss, hwm = (int(mem[k].split()[0]) // 1024 for k in ("VmRSS", "VmHWM"))
+        print(f"memory: pid {pid}: {rss} MB resident (peak {hwm} MB): {cmd}")'
     if podman logs "$cid" 2>&1 | grep -q -F "$token"; then
         fail "the token appears in the container's log"
     fi
@@ -359,11 +404,11 @@ check_inside() {
 
 stop_container() {
     local code
-    podman stop --time 20 "$cid" >/dev/null
+    podman stop --time 20 "$cid" >/dev/null 2>>"$state/run.err"
     code=$(podman inspect --format '{{.State.ExitCode}}' "$cid")
     echo "stopped ${cid:0:12}: exit code $code"
     podman logs "$cid" 2>&1 | tail -3
-    podman rm "$cid" >/dev/null
+    podman rm "$cid" >/dev/null 2>>"$state/run.err"
     cid=""
     # 137 means it ignored SIGTERM for 20 s and was killed.
     [ "$code" != 137 ] || fail "the service did not stop on SIGTERM"
@@ -376,6 +421,7 @@ step "build image" build_image
 step "image facts" image_facts
 step "start container" start_container
 step "wait for /healthz" wait_healthy
+step "wait for /readyz" wait_ready
 step "requests" check_service
 step "inside the container" check_inside
 step "stop by id" stop_container
