@@ -72,7 +72,7 @@ DOCUMENT = {
             {"drop": "staff_shifts", "vif": 1.3, "max_vif_after": 1.0},
         ],
         "kept": ["oven_hours"],
-        "stopped_by_protection": [],
+        "stopped_by_protection": False,
     },
     "ridge": {
         "k_scale": "correlation",

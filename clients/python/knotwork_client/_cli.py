@@ -256,8 +256,9 @@ def breaches(doc: dict[str, Any], threshold: float) -> list[str]:
     """Names that break the threshold rule in an assessment document.
 
     A column counts unless it belongs to a multi-column term; it breaks the rule when it is
-    aliased or above the threshold. A multi-column term breaks it when GVIF^(1/(2 df)) is
-    missing (not finite) or exceeds sqrt(threshold), the comparison of Fox & Monette (1992).
+    aliased or above the threshold. A multi-column term breaks it when it is aliased or its
+    GVIF^(1/(2 df)) is missing (not finite) or exceeds sqrt(threshold), the comparison of
+    Fox & Monette (1992).
     """
     grouped: set[str] = set()
     out: list[str] = []
@@ -267,7 +268,7 @@ def breaches(doc: dict[str, Any], threshold: float) -> list[str]:
             continue
         grouped.update(cols)
         scaled = term.get("gvif_scaled")
-        if scaled is None or scaled > math.sqrt(threshold):
+        if term.get("aliased") or scaled is None or scaled > math.sqrt(threshold):
             out.append(str(term.get("name")))
     for var in doc.get("variables") or []:
         if var.get("name") in grouped:
@@ -279,8 +280,10 @@ def breaches(doc: dict[str, Any], threshold: float) -> list[str]:
 
 def _threshold(doc: dict[str, Any], options: dict[str, Any]) -> float:
     removal = doc.get("removal") or {}
-    value = options.get("threshold", removal.get("threshold"))
-    return float(value) if value is not None else DEFAULT_THRESHOLD
+    for value in (doc.get("threshold"), options.get("threshold"), removal.get("threshold")):
+        if value is not None:
+            return float(value)
+    return DEFAULT_THRESHOLD
 
 
 def _max_vif(doc: dict[str, Any]) -> tuple[float | None, str | None]:

@@ -93,6 +93,10 @@ class Term(_Record):
         Generalized VIF; None when not finite.
     gvif_scaled
         GVIF^(1/(2 df)), comparable to sqrt(threshold).
+    above_threshold
+        Whether GVIF^(1/(2 df)) exceeds sqrt(threshold) (a rule of thumb).
+    aliased
+        Whether a column of the term is in an exact dependency (GVIF not finite).
     """
 
     name: str
@@ -100,6 +104,8 @@ class Term(_Record):
     df: int = 0
     gvif: float | None = None
     gvif_scaled: float | None = None
+    above_threshold: bool = False
+    aliased: bool = False
 
 
 class Tangle(_Record):
@@ -125,6 +131,8 @@ class Conditioning(_Record):
     basis
         Which matrix was decomposed (the scaled design with an uncentred intercept, or the
         correlation matrix); see the service documentation.
+    names
+        The columns of that matrix (``(intercept)`` first when it is included).
     eigenvalues
         Eigenvalues of that matrix, largest first.
     condition_number
@@ -138,6 +146,7 @@ class Conditioning(_Record):
     """
 
     basis: str | None = None
+    names: list[str] = []
     eigenvalues: list[float | None] = []
     condition_number: float | None = None
     indices: list[float | None] = []
@@ -227,11 +236,17 @@ class Removal(_Record):
         The drops, in order.
     kept
         Variables left at the end.
+    stopped_by_protection
+        Whether protected variables stopped the sequence while some VIF was still high.
+    still_high
+        What is still above the threshold when the sequence stops.
     """
 
     threshold: float | None = None
     steps: list[RemovalStep] = []
     kept: list[str] = []
+    stopped_by_protection: bool | None = None
+    still_high: list[str] = []
 
     def to_frame(self) -> Any:
         """The steps as a pandas DataFrame (columns ``drop``, ``vif``, ``max_vif_after``)."""
@@ -261,6 +276,8 @@ class RidgePoint(_Record):
         Effective degrees of freedom tr[(R + kI)^-1 R].
     coefficients
         Standardized coefficients (only with a response).
+    original_coefficients
+        The same coefficients on the variables' own scales (only with a response and moments).
     """
 
     k: float
@@ -268,6 +285,7 @@ class RidgePoint(_Record):
     max_vif: float | None = None
     effective_df: float | None = None
     coefficients: list[float | None] | None = None
+    original_coefficients: list[float | None] | None = None
 
 
 class RidgeChoice(_Record):
@@ -404,6 +422,16 @@ class Assessment(_Record):
         Number of predictors.
     input_kind
         ``table``, ``correlation`` or ``moments``: what the service received.
+    response
+        The response's name, or None.
+    intercept
+        Whether centred diagnostics (a model with an intercept) were computed.
+    threshold
+        The VIF threshold in force (a rule of thumb, echoed).
+    comparison
+        Remedies side by side, as the service lays them out.
+    repair
+        How far an inconsistent correlation matrix was moved, when repair was asked for.
     """
 
     variables: list[Variable] = []
@@ -419,6 +447,11 @@ class Assessment(_Record):
     n: float | None = None
     p: int | None = None
     input_kind: str | None = None
+    response: str | None = None
+    intercept: bool | None = None
+    threshold: float | None = None
+    comparison: Any = None
+    repair: Any = None
 
     @property
     def max_vif(self) -> float:
