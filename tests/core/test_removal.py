@@ -7,6 +7,8 @@ import warnings
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from statsmodels.stats.outliers_influence import variance_inflation_factor
@@ -197,6 +199,20 @@ def test_random_latent_designs_equal_scratch(rng, p):
     for noise in (0.05, 0.3, 1.0):
         m = np.corrcoef(latent_design(rng, 3 * p, p, max(2, p // 6), noise), rowvar=False)
         check_against_scratch(m, 5.0)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    seed=st.integers(0, 2**32 - 1),
+    p=st.integers(2, 25),
+    factors=st.integers(1, 6),
+    noise=st.floats(0.01, 2.0),
+    threshold=st.sampled_from([1.5, 2.0, 5.0, 10.0]),
+)
+def test_property_sequence_equals_scratch(seed, p, factors, noise, threshold):
+    rng = np.random.default_rng(seed)
+    m = np.corrcoef(latent_design(rng, 4 * p + 10, p, factors, noise), rowvar=False)
+    check_against_scratch(m, threshold)
 
 
 def test_downdate_paths_agree_and_refactor_on_ill_conditioned(rng):
@@ -401,6 +417,20 @@ def test_dependency_among_protected_stops_the_sequence(rng):
     assert set(result.blocking) == {"x0", "x1", "x2"}
     assert result.max_vif_left is None
     assert result.steps == ()
+
+
+def test_term_in_an_exact_dependency_is_dropped_whole(rng):
+    x, _ = make_term_design(rng)
+    x = np.column_stack([x, x[:, 1] + x[:, 2]])  # x7 = sum of two of the factor's columns
+    m = np.corrcoef(x, rowvar=False)
+    terms = [("factor", (1, 2, 3))]
+    for protect in ((), ("x7",), ("factor",)):
+        result = removal_sequence(m, names_of(8), threshold=5, terms=terms, protect=protect)
+        first = result.steps[0]
+        assert first.reason == ALIASED and first.drop in {"x7", "factor"}
+        assert first.drop not in protect
+        assert set(first.relation) == {"x1", "x2", "x7"}
+        assert first.max_vif_after is not None  # what is left has no exact dependency
 
 
 def test_near_dependency_is_not_aliased(rng):

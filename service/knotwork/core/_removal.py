@@ -401,10 +401,11 @@ class _Downdated:
         """
         if growth_limit <= 1.0:
             return True
-        if not self.on.any():
-            return False
-        if self.diag.min() <= 0.0:
+        smallest = float(self.diag.min())  # dropped entries are +inf
+        if smallest <= 0.0:
             return True
+        if max(float(self.mag.max()), self.scale0) <= growth_limit * smallest:
+            return False  # the common case: no entry can be in doubt
         largest = float(np.max(self.diag, where=self.on, initial=0.0))
         scale = np.maximum(self.mag, self.scale0)
         bound = np.maximum(growth_limit * self.diag, EXCESS_LIMIT * largest)
