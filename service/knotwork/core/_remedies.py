@@ -238,7 +238,8 @@ def compare_remedies(
 
     rows = []
     full_max = None if spec.null_dim else float(np.max(eig.vifs(np.array([0.0]))))
-    rows.append(row(NONE, f"all {p} predictors", p - spec.null_dim, full_max, r2_full))
+    everything = f"all {p} predictors" if p != 1 else "the one predictor"
+    rows.append(row(NONE, everything, p - spec.null_dim, full_max, r2_full))
 
     if removal is not None:
         keep = list(removal.kept_indices)
