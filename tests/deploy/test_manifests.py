@@ -150,12 +150,48 @@ def test_probes_point_at_the_health_routes_on_the_service_port() -> None:
         assert (ports.get(port) if isinstance(port, str) else port) == PORT, probe
 
 
+def test_probed_and_scraped_routes_exist_in_the_service() -> None:
+    # The application itself, not a list of names: a renamed route breaks this test.
+    from knotwork.api import create_app
+
+    get_routes = {
+        route.path for route in create_app().routes if "GET" in getattr(route, "methods", ())
+    }
+    container = _deployment_container()
+    probed = {container[p]["httpGet"]["path"] for p in ("livenessProbe", "readinessProbe")}
+    probed.add(container["startupProbe"]["httpGet"]["path"])
+    probed.add(
+        _one("Deployment")["spec"]["template"]["metadata"]["annotations"]["prometheus.io/path"]
+    )
+    (config,) = _load(DEPLOY / "prometheus.yml")
+    probed.add(config["scrape_configs"][0]["metrics_path"])
+    assert probed == {LIVENESS, READINESS, METRICS}
+    assert probed <= get_routes
+
+
 def test_resources_have_requests_and_limits() -> None:
     resources = _deployment_container()["resources"]
     for part in ("requests", "limits"):
         assert {"cpu", "memory"} <= resources[part].keys(), part
     assert _memory_bytes(resources["requests"]["memory"]) <= _memory_bytes(
         resources["limits"]["memory"]
+    )
+
+
+def test_processes_times_concurrency_fit_the_cpu_limit() -> None:
+    # KNOTWORK_CONCURRENCY must be explicit: its default counts the cores the process may run
+    # on, which under a CPU quota is the whole node (settings.py, usable_cores).
+    container = _deployment_container()
+    env = _env(container)
+    cpu = container["resources"]["limits"]["cpu"]
+    cores = int(cpu[:-1]) / 1000 if cpu.endswith("m") else float(cpu)
+    assert int(env["KNOTWORK_WORKERS"]) * int(env["KNOTWORK_CONCURRENCY"]) == cores
+    _, service = _compose_service()
+    compose_env = service["environment"]
+    compose_cpus = float(service["deploy"]["resources"]["limits"]["cpus"])
+    assert (
+        int(compose_env["KNOTWORK_WORKERS"]) * int(compose_env["KNOTWORK_CONCURRENCY"])
+        == compose_cpus
     )
 
 
