@@ -37,7 +37,8 @@ CHILD = textwrap.dedent(
         return int(open("/proc/self/statm").read().split()[0]) * os.sysconf("SC_PAGE_SIZE")
 
     warm = sys.argv[2]
-    pq.write_table(pa.table({"a": np.arange(1000.0), "b": np.sin(np.arange(1000.0))}), warm)
+    rng = np.random.default_rng(0)
+    pq.write_table(pa.table({f"w{j}": rng.random(70_000) for j in range(8)}), warm)
     summarize(warm)  # thread pools and lazily loaded modules come up before the limit
     limit = address_space() + int(sys.argv[3]) * 2**20
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
@@ -109,7 +110,8 @@ def test_the_limit_is_real(tall_parquet, tmp_path):
     path, _, _ = tall_parquet
     greedy = CHILD.replace(
         "s = summarize(sys.argv[1])",
-        "pq.read_table(sys.argv[1], use_threads=False); raise SystemExit(0)",
+        "pq.ParquetFile(sys.argv[1], pre_buffer=False).read(use_threads=False); "
+        "raise SystemExit(0)",
     )
     env = {**os.environ, "ARROW_DEFAULT_MEMORY_POOL": "system", "MALLOC_ARENA_MAX": "1"}
     done = subprocess.run(
