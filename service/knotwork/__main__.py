@@ -1,0 +1,166 @@
+"""Start the service: ``python -m knotwork --host H --port P`` (also the ``knotwork`` command).
+
+Settings come from the ``KNOTWORK_*`` environment variables (see :mod:`knotwork.settings`),
+checked before anything starts. Without tokens the service runs open only on a loopback
+address; on any other address it refuses to start unless ``KNOTWORK_ALLOW_OPEN=true``.
+
+The default server is uvicorn (with httptools and uvloop); ``--server granian`` is the
+alternative. ``bench/bench_service.py`` measures both; DEVELOPERS.md has the figures and why.
+"""
+
+from __future__ import annotations
+
+import argparse
+import ipaddress
+import json
+import os
+import sys
+import tempfile
+from typing import Any
+
+from knotwork.settings import Settings, SettingsError
+
+__all__ = ["curl_line", "is_loopback", "main", "worker_app"]
+
+_SERVERS = ("uvicorn", "granian")
+
+
+def is_loopback(host: str) -> bool:
+    """Whether ``host`` only accepts connections from this machine."""
+    if host.lower() == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_loopback
+    except ValueError:
+        # A host name other than localhost may resolve to anything: treat it as public.
+        return False
+
+
+def curl_line(host: str, port: int, *, token_needed: bool) -> str:
+    """A ready-to-paste curl command posting the correlation example to the service."""
+    from knotwork.api._examples import CORRELATION_EXAMPLE
+
+    if host in ("0.0.0.0", ""):
+        host = "127.0.0.1"
+    elif host == "::":
+        host = "::1"
+    if ":" in host and not host.startswith("["):
+        host = f"[{host}]"
+    body = json.dumps(CORRELATION_EXAMPLE, separators=(",", ":"))
+    auth = ' -H "Authorization: Bearer $KNOTWORK_TOKEN"' if token_needed else ""
+    return (
+        f"curl -sS -X POST http://{host}:{port}/v1/assess"
+        f" -H 'Content-Type: application/json'{auth} -d '{body}'"
+    )
+
+
+def _prepare_process(settings: Settings) -> None:
+    from threadpoolctl import threadpool_limits
+
+    from knotwork.api._logging import configure_logging
+
+    configure_logging(settings.log_level)
+    # One BLAS thread per worker was the fastest setting measured (bench/bench_service.py);
+    # several would also oversubscribe the cores the request threads already share.
+    threadpool_limits(limits=settings.blas_threads)
+
+
+def worker_app() -> Any:
+    """Application factory for server worker processes (settings read again from the env)."""
+    from knotwork.api import create_app
+
+    settings = Settings.from_env()
+    _prepare_process(settings)
+    return create_app(settings)
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="knotwork", description="Collinearity diagnostics over HTTP."
+    )
+    parser.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
+    parser.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    parser.add_argument(
+        "--server", choices=_SERVERS, default="uvicorn", help="ASGI server (default uvicorn)"
+    )
+    parser.add_argument(
+        "--workers", type=int, default=None, help="processes (default KNOTWORK_WORKERS, or 1)"
+    )
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Check the settings and the address, print a curl line, run the server."""
+    args = _parser().parse_args(argv)
+    try:
+        settings = Settings.from_env()
+    except SettingsError as exc:
+        print(f"knotwork: {exc}", file=sys.stderr)
+        return 2
+    if not 0 < args.port < 65536:
+        print(f"knotwork: --port must be between 1 and 65535, got {args.port}", file=sys.stderr)
+        return 2
+    workers = args.workers if args.workers is not None else settings.workers
+    if workers < 1:
+        print(f"knotwork: --workers must be at least 1, got {workers}", file=sys.stderr)
+        return 2
+    if settings.open and not is_loopback(args.host) and not settings.allow_open:
+        print(
+            f"knotwork: refusing to start on {args.host}, which is not a loopback address, "
+            "without tokens. Set KNOTWORK_TOKENS_FILE or KNOTWORK_TOKENS, or set "
+            "KNOTWORK_ALLOW_OPEN=true to run open on purpose.",
+            file=sys.stderr,
+        )
+        return 2
+    if workers > 1 and not os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
+        # Worker processes must share their counters, or each scrape sees one worker's.
+        os.environ["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix="knotwork-metrics-")
+
+    print(
+        f"knotwork: serving on http://{args.host}:{args.port} ({args.server}, {workers} "
+        f"worker(s), {'open: no token needed' if settings.open else 'bearer tokens required'})."
+        f"\nTry:\n  {curl_line(args.host, args.port, token_needed=not settings.open)}",
+        flush=True,
+    )
+    if args.server == "granian":
+        return _run_granian(args.host, args.port, workers)
+    return _run_uvicorn(settings, args.host, args.port, workers)
+
+
+def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
+    import uvicorn
+
+    common: dict[str, Any] = {
+        "host": host,
+        "port": port,
+        "log_config": None,
+        "access_log": False,
+        "server_header": False,
+        "timeout_graceful_shutdown": max(5, int(settings.request_timeout_s) + 5),
+    }
+    if workers == 1:
+        app = worker_app()
+        uvicorn.run(app, **common)
+    else:
+        uvicorn.run("knotwork.__main__:worker_app", factory=True, workers=workers, **common)
+    return 0
+
+
+def _run_granian(host: str, port: int, workers: int) -> int:
+    from granian import Granian
+    from granian.constants import Interfaces
+
+    Granian(
+        "knotwork.__main__:worker_app",
+        factory=True,
+        address=host,
+        port=port,
+        interface=Interfaces.ASGI,
+        workers=workers,
+        log_access=False,
+    ).serve()
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
