@@ -5,6 +5,7 @@ Build a :class:`Summary` with :func:`from_table`, :func:`from_frame`, :func:`fro
 """
 
 from ._assess import SECTIONS, Assessment, Options, assess, check_options
+from ._components import Components, principal_components
 from ._conditioning import Conditioning, Tangle, condition_diagnostics
 from ._dependencies import (
     Dependency,
@@ -28,6 +29,10 @@ from ._inflation import (
     variance_inflation,
 )
 from ._notices import CAUTIONS, CODES, Notice
+from ._remedies import Comparison, RemedyRow, compare_remedies
+from ._removal import Removal, RemovalStep, StillHigh, removal_sequence
+from ._repair import Repair, nearest_correlation
+from ._ridge import Ridge, RidgeChoice, RidgePoint, default_grid, ridge_analysis
 from ._significance import FarrarGlauber, Tests, VariableF, collinearity_tests
 from ._summary import (
     INTERCEPT_NAME,
@@ -51,6 +56,8 @@ __all__ = [
     "REPAIR_POLICIES",
     "SECTIONS",
     "Assessment",
+    "Comparison",
+    "Components",
     "Conditioning",
     "Dependency",
     "DependencyReport",
@@ -63,8 +70,16 @@ __all__ = [
     "OptionError",
     "Options",
     "Problem",
+    "RemedyRow",
+    "Removal",
+    "RemovalStep",
+    "Repair",
     "RepairReport",
+    "Ridge",
+    "RidgeChoice",
+    "RidgePoint",
     "Spectrum",
+    "StillHigh",
     "Summary",
     "Tangle",
     "Term",
@@ -76,7 +91,9 @@ __all__ = [
     "assess",
     "check_options",
     "collinearity_tests",
+    "compare_remedies",
     "condition_diagnostics",
+    "default_grid",
     "find_dependencies",
     "from_correlation",
     "from_frame",
@@ -84,5 +101,9 @@ __all__ = [
     "from_table",
     "generalized_inflation",
     "merge_moments",
+    "nearest_correlation",
+    "principal_components",
+    "removal_sequence",
+    "ridge_analysis",
     "variance_inflation",
 ]

@@ -8,11 +8,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ._components import Components, principal_components
 from ._conditioning import Conditioning, condition_diagnostics
 from ._dependencies import Dependency, DependencyReport, Spectrum, find_dependencies
 from ._errors import OptionError, Problem
 from ._inflation import TermInflation, VariableInflation, generalized_inflation, variance_inflation
 from ._notices import CAUTIONS, Notice, notice
+from ._remedies import Comparison, compare_remedies
+from ._removal import Removal, removal_sequence
+from ._ridge import Ridge, ridge_analysis
 from ._significance import Tests, collinearity_tests
 from ._summary import RepairReport, Summary
 
@@ -134,10 +138,10 @@ class Assessment:
     conditioning: Conditioning | None
     tests: Tests | None
     dependencies: tuple[Dependency, ...]
-    removal: object | None = None
-    ridge: object | None = None
-    components: object | None = None
-    comparison: object | None = None
+    removal: Removal | None = None
+    ridge: Ridge | None = None
+    components: Components | None = None
+    comparison: Comparison | None = None
     repair: RepairReport | None = None
     warnings: tuple[Notice, ...] = ()
     cautions: tuple[str, ...] = field(default=CAUTIONS)
@@ -304,8 +308,6 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     removal = ridge = components = comparison = None
     wants_comparison = options.wants("comparison")
     if options.wants("removal") or wants_comparison:
-        from ._removal import removal_sequence
-
         removal = removal_sequence(
             matrix,
             names,
@@ -317,8 +319,6 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         )
     sds = summary.sds if options.intercept else None
     if options.wants("ridge") or wants_comparison:
-        from ._ridge import ridge_analysis
-
         ridge = ridge_analysis(
             matrix,
             names,
@@ -334,8 +334,6 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             spectrum=spectrum,
         )
     if options.wants("components") or wants_comparison:
-        from ._components import principal_components
-
         components = principal_components(
             matrix,
             names,
@@ -345,12 +343,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             r_xy=r_xy,
             sds=sds,
             response_sd=summary.response_sd if options.intercept else None,
+            means=summary.predictor_means if options.intercept else None,
+            response_mean=summary.response_mean if options.intercept else None,
             intercept=options.intercept,
             spectrum=spectrum,
         )
     if wants_comparison:
-        from ._remedies import compare_remedies
-
         comparison = compare_remedies(
             matrix,
             names,
@@ -361,6 +359,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             components=components,
             r_xy=r_xy,
             intercept=options.intercept,
+            spectrum=spectrum,
         )
     return Assessment(
         input_kind=summary.input_kind,
