@@ -34,8 +34,16 @@ format: install
 test: lint
 	$(BIN)/pytest
 
+openapi: install
+	$(BIN)/python -m knotwork.api.openapi
+
+# Each script prints its own side-by-side ratios; --quick keeps the whole set to a few minutes.
 bench: install
-	$(BIN)/python bench/run_all.py
+	for script in bench/bench_*.py; do echo "== $$script"; $(BIN)/python $$script --quick || exit 1; done
+
+# Builds the container recipe on a locally made base image and runs it on a loopback port.
+image-check: install
+	bash deploy/image-check.sh
 
 clean:
 	rm -rf $(VENV) .pytest_cache .ruff_cache .mypy_cache .hypothesis
