@@ -14,7 +14,6 @@ import pytest
 from api_support import (
     ARROW,
     ARROW_FILE,
-    CORE_SECTIONS,
     JSON,
     PARQUET,
     arrow_file,
@@ -36,9 +35,13 @@ from knotwork.api._examples import (
 from knotwork.api._logging import JsonFormatter
 
 
-def with_sections(example: dict[str, Any], sections: list[str] = CORE_SECTIONS) -> dict[str, Any]:
+def with_sections(example: dict[str, Any], sections: list[str] | None = None) -> dict[str, Any]:
+    """A copy of the example asking for ``sections`` (None: every section)."""
     body = copy.deepcopy(example)
-    body.setdefault("options", {})["sections"] = sections
+    options = body.setdefault("options", {})
+    options.pop("sections", None)
+    if sections is not None:
+        options["sections"] = sections
     return body
 
 
@@ -69,6 +72,17 @@ def test_examples_are_answered_with_the_fixed_field_names(client: Any, example: 
     assert {"basis", "eigenvalues", "condition_number", "indices", "proportions", "tangles"} <= set(
         result["conditioning"]
     )
+    assert {"threshold", "steps", "kept"} <= set(result["removal"])
+    assert result["ridge"]["k_scale"] == "correlation"
+    assert {rule["rule"] for rule in result["ridge"]["choices"]} >= {
+        "hoerl_kennard_baldwin",
+        "lawless_wang",
+        "gcv",
+        "vif_threshold",
+    }
+    assert {"eigenvalues", "explained", "cumulative", "loadings", "kept", "rule"} <= set(
+        result["components"]
+    )
 
 
 def test_table_vif_matches_statsmodels(client: Any) -> None:
@@ -87,7 +101,7 @@ def test_table_vif_matches_statsmodels(client: Any) -> None:
 
 
 def test_json_arrow_and_parquet_give_the_same_answer(client: Any) -> None:
-    options = {"threshold": 5, "protect": ["irrigation_l"], "sections": CORE_SECTIONS}
+    options = {"threshold": 5, "protect": ["irrigation_l"]}
     body = {
         "input": {
             "kind": "table",
@@ -99,7 +113,7 @@ def test_json_arrow_and_parquet_give_the_same_answer(client: Any) -> None:
     }
     expected = post(client, body).json()
     table = arrow_table(TABLE_COLUMNS, {"rootstock": ROOTSTOCK})
-    query = "threshold=5&protect=irrigation_l&response=yield_kg&sections=" + ",".join(CORE_SECTIONS)
+    query = "threshold=5&protect=irrigation_l&response=yield_kg"
     for media, content in (
         (ARROW, arrow_stream(table)),
         (ARROW_FILE, arrow_file(table)),

@@ -17,7 +17,7 @@ from knotwork.settings import Settings
 
 from ._auth import TokenGate
 from ._docs import assets_router, docs_router, render_plugins
-from ._examples import CORRELATION_EXAMPLE
+from ._examples import TABLE_EXAMPLE
 from ._logging import AccessLog
 from ._metrics import metrics, prometheus_config
 from ._problems import handle_exception
@@ -44,10 +44,11 @@ tests; decisions on regulated models follow local rules and qualified review.
 
 
 def _warm_up() -> None:
-    # One small assessment loads every module and BLAS kernel before the first client waits.
+    # One small, complete assessment (rows, a categorical term, a response, every section)
+    # loads every module and BLAS kernel before the first client waits.
     from knotwork.codecs import decode_assess, run
 
-    run(decode_assess(msgspec.json.encode(CORRELATION_EXAMPLE), Limits()))
+    run(decode_assess(msgspec.json.encode(TABLE_EXAMPLE), Limits()))
 
 
 def create_app(settings: Settings | None = None) -> Litestar:
