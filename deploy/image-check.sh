@@ -251,6 +251,10 @@ names = sorted(d.metadata["Name"].lower() for d in m.distributions())
 bad = [n for n in names if n.startswith(("nvidia", "cuda", "torch", "cupy", "pip", "setuptools"))]
 print(len(names), "distributions", "bad:" + ",".join(bad) if bad else "clean")')
     echo "venv: $venv"
+    echo "largest in the venv (MB): $(podman run --rm --no-healthcheck --entrypoint sh "$app_image" -c \
+        'cd "$(python -c "import sysconfig; print(sysconfig.get_path(\"purelib\"))")" &&
+         du -sm -- * | sort -rn | head -8 | awk "{printf \"%s %s, \", \$2, \$1}"' |
+        sed 's/, $//')"
     case "$venv" in *clean) ;; *) fail "GPU packages or installers in the venv: $venv" ;; esac
     [ "$mb" -lt "$max_mb" ] || fail "image is $mb MB, over $max_mb MB"
 }
