@@ -120,7 +120,10 @@ apt_mirror() {
     local m=""
     if compgen -G '/etc/apt/sources.list.d/*.sources' >/dev/null; then
         m=$(awk -v suite="$suite" '
-            /^[[:space:]]*$/ { if (uris != "" && ok) { print uris; exit } uris = ""; ok = 0 }
+            FNR == 1 || /^[[:space:]]*$/ {
+                if (uris != "" && ok) { print uris; exit }
+                uris = ""; ok = 0
+            }
             /^URIs:/ { uris = $2 }
             /^Suites:/ { for (i = 2; i <= NF; i++) if ($i == suite) ok = 1 }
             END { if (uris != "" && ok) print uris }' /etc/apt/sources.list.d/*.sources | head -1)
