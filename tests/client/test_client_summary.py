@@ -423,3 +423,27 @@ def test_summary_pickles(bakery):
     s = summarize(bakery, response="loaves")
     back = pickle.loads(pickle.dumps(s))
     _same(back, s)
+
+
+def test_reading_ahead_stops_cleanly_on_a_late_error(tmp_path, bakery):
+    import threading
+
+    frame = bakery[PREDICTORS].copy()
+    big = pd.concat([frame] * 300, ignore_index=True)  # 120k rows: several batches
+    big.loc[len(big) - 5, "flour_kg"] = np.inf
+    pq.write_table(pa.Table.from_pandas(big), tmp_path / "late.parquet", row_group_size=10_000)
+    before = threading.active_count()
+    with pytest.raises(DataError, match="column 'flour_kg' has 1 infinite values"):
+        summarize(tmp_path / "late.parquet")
+    assert not any(t.name == "knotwork-read-ahead" for t in threading.enumerate())
+    assert threading.active_count() <= before
+    # A reader that fails half-way hands its error over, too.
+
+    def failing():
+        yield from pa.Table.from_pandas(frame).to_batches(max_chunksize=100)
+        raise OSError("the disk went away")
+
+    table = pa.Table.from_pandas(frame)
+    reader = pa.RecordBatchReader.from_batches(table.schema, failing())
+    with pytest.raises(OSError, match="the disk went away"):
+        summarize(reader)

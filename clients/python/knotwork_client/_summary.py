@@ -37,13 +37,19 @@ class _Complete:
         return _Complete(0.0, np.zeros(q), np.zeros((q, q)))
 
     @staticmethod
-    def of_rows(x: np.ndarray, w: np.ndarray | None) -> _Complete:
-        """Moments of a block of complete rows (``x`` is consumed: it is centred in place)."""
+    def of_rows(x: np.ndarray, w: np.ndarray | None, sums: np.ndarray | None = None) -> _Complete:
+        """Moments of a block of complete rows (``x`` is consumed: it is centred in place).
+
+        ``sums`` are the column sums of ``x`` when the caller has them already (unweighted).
+        """
         rows, q = x.shape
         total = float(rows) if w is None else float(w.sum())
         if rows == 0 or total == 0.0:
             return _Complete.empty(q)
-        mean = x.mean(axis=0) if w is None else (w @ x) / total
+        if w is None:
+            mean = sums / total if sums is not None else x.mean(axis=0)
+        else:
+            mean = (w @ x) / total
         x -= mean
         # Corrected two-pass: the centred block's own mean (rounding residue of the first
         # pass) is folded back in, as in Chan, Golub & LeVeque (1983), eq. 1.7.
@@ -498,8 +504,7 @@ def _make_spec(
     return _Spec(response, weights, cats, missing, cols)
 
 
-def _block_summary(block: Block, spec: _Spec) -> Summary:
-    """The summary of one block of rows."""
+def _check_roles(block: Block, spec: _Spec) -> None:
     for role, name in (("response", spec.response), ("weights", spec.weights)):
         if name is None:
             continue
@@ -514,11 +519,26 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
                 f"{list(block.numeric) + list(block.categorical)}",
                 [(name, "no such column")],
             )
-    numeric_names = tuple(c for c in block.numeric if c != spec.weights)
-    rows = block.rows
+
+
+def _check_weights(w: np.ndarray, name: str) -> None:
+    negative = int((w < 0).sum())
+    if negative or np.isinf(w).any():
+        raise DataError(
+            f"weights column {name!r} has {negative} negative or infinite values; "
+            "weights must be finite and non-negative",
+            [(name, "negative or infinite weights")],
+        )
+
+
+def _missing_counts(
+    block: Block, numeric_names: Sequence[str], xnum: np.ndarray, w: np.ndarray | None, spec: _Spec
+) -> tuple[dict[str, int], np.ndarray]:
+    """Per-column missing counts and the mask of complete rows; raises on infinite values."""
     counts: dict[str, int] = {}
-    for name in numeric_names:
-        values = block.numeric[name]
+    ok = np.ones(block.rows, dtype=bool)
+    for j, name in enumerate(numeric_names):
+        values = xnum[:, j]
         bad = np.isinf(values)
         if bad.any():
             raise DataError(
@@ -526,39 +546,104 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
                 "(or missing values) can be summarized",
                 [(name, "infinite values")],
             )
-        counts[name] = int(np.isnan(values).sum())
+        gap = np.isnan(values)
+        counts[name] = int(gap.sum())
+        ok &= ~gap
     for name, (codes, _) in block.categorical.items():
-        counts[name] = int((codes < 0).sum())
+        gap = codes < 0
+        counts[name] = int(gap.sum())
+        ok &= ~gap
+    if w is not None and spec.weights is not None:
+        gap = np.isnan(w)
+        counts[spec.weights] = int(gap.sum())
+        ok &= ~gap
+    return {k: v for k, v in counts.items() if v}, ok
+
+
+def _numeric_fast(
+    block: Block, numeric_names: tuple[str, ...], w: np.ndarray | None
+) -> _Complete | None:
+    """Moments of a block of numbers only, with no missing value, in three passes; else None.
+
+    Each column is summed (a NaN or an infinity makes its sum non-finite, which sends the
+    block to the careful path), then centred straight into a column of the block matrix, whose
+    Gram product gives the co-moments. Centring by the block's own mean (rounded, error
+    delta) adds only ``n delta delta^T`` to the co-moments, second order in rounding, so no
+    correction pass is needed here.
+    """
+    rows, k = block.rows, len(numeric_names)
+    if rows == 0 or (w is not None and np.isnan(w).any()):
+        return None
+    cols = [block.numeric[name] for name in numeric_names]
+    if w is None:
+        total = float(rows)
+        sums = np.array([col.sum() for col in cols])
+    else:
+        total = float(w.sum())
+        if total == 0.0:
+            return None
+        sums = np.array([np.dot(w, col) for col in cols])
+    if not np.isfinite(sums).all():
+        return None
+    mean = sums / total
+    x = np.empty((rows, k), dtype=np.float64, order="F")
+    for j, col in enumerate(cols):
+        np.subtract(col, mean[j], out=x[:, j])
+    if w is not None:
+        x *= np.sqrt(w)[:, None]
+    return _Complete(total, mean, np.dot(x.T, x))
+
+
+def _block_summary(block: Block, spec: _Spec) -> Summary:
+    """The summary of one block of rows."""
+    _check_roles(block, spec)
+    numeric_names = tuple(c for c in block.numeric if c != spec.weights)
+    rows = block.rows
     w = None
     if spec.weights is not None:
         w = block.numeric[spec.weights]
-        negative = int((w < 0).sum())
-        if negative or np.isinf(w).any():
-            raise DataError(
-                f"weights column {spec.weights!r} has {negative} negative or infinite values; "
-                "weights must be finite and non-negative",
-                [(spec.weights, "negative or infinite weights")],
+        _check_weights(w, spec.weights)
+    if not block.categorical and spec.missing != "pairwise":
+        fast = _numeric_fast(block, numeric_names, w)
+        if fast is not None:
+            return Summary(
+                numeric=numeric_names,
+                levels={},
+                response=spec.response,
+                weights=spec.weights,
+                missing=spec.missing,
+                rows_read=rows,
+                rows_complete=rows,
+                missing_counts={},
+                _moments=fast,
             )
-        counts[spec.weights] = int(np.isnan(w).sum())
-    counts = {k: v for k, v in counts.items() if v}
-
-    ok = np.ones(rows, dtype=bool)
-    for name in numeric_names:
-        ok &= ~np.isnan(block.numeric[name])
-    for codes, _ in block.categorical.values():
-        ok &= codes >= 0
-    if w is not None:
-        ok &= ~np.isnan(w)
-    complete = int(ok.sum())
+    # Column-major, so each column is copied in one contiguous run and summed contiguously.
+    k = len(numeric_names)
+    xnum = np.empty((rows, k), dtype=np.float64, order="F")
+    for j, name in enumerate(numeric_names):
+        xnum[:, j] = block.numeric[name]
+    # Fast path: finite column sums mean no NaN and no infinity anywhere (a sum that overflows
+    # merely sends the block down the careful path below).
+    colsum = xnum.sum(axis=0)
+    clean = bool(np.isfinite(colsum).all())
+    clean = clean and not any(bool((c < 0).any()) for c, _ in block.categorical.values())
+    clean = clean and (w is None or not np.isnan(w).any())
+    if clean:
+        counts: dict[str, int] = {}
+        ok = None
+        complete = rows
+    else:
+        counts, ok = _missing_counts(block, numeric_names, xnum, w, spec)
+        complete = int(ok.sum())
 
     if spec.missing == "reject" and counts:
         # The summary is unusable; keep counting so the error reports totals.
-        keep = np.zeros(rows, dtype=bool)
-    elif spec.missing == "pairwise":
-        keep = np.ones(rows, dtype=bool) if w is None else ~np.isnan(w)
+        keep: np.ndarray | None = np.zeros(rows, dtype=bool)
+    elif spec.missing == "pairwise" or ok is None:
+        keep = None if w is None or clean else ~np.isnan(w)
     else:
         keep = ok
-    every = bool(keep.all())
+    every = keep is None or bool(keep.all())
 
     levels: dict[str, tuple[str, ...]] = {}
     positions: dict[str, np.ndarray] = {}
@@ -571,24 +656,27 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
         levels[name] = tuple(used)
         positions[name] = np.where(c >= 0, position[np.maximum(c, 0)], -1) if len(lv) else c
 
-    q = len(numeric_names) + sum(len(v) for v in levels.values())
-    kept = rows if every else int(keep.sum())
-    x = np.empty((kept, q), dtype=np.float64)
-    for j, name in enumerate(numeric_names):
-        x[:, j] = block.numeric[name] if every else block.numeric[name][keep]
-    k = len(numeric_names)
-    for name, lv in levels.items():
-        width = len(lv)
-        x[:, k : k + width] = 0.0
-        pos = positions[name]
-        observed = pos >= 0
-        x[np.flatnonzero(observed), k + pos[observed]] = 1.0
-        if spec.missing == "pairwise":
-            x[~observed, k : k + width] = np.nan
-        k += width
+    width_all = sum(len(v) for v in levels.values())
+    if every and width_all == 0:
+        x, sums = xnum, (colsum if clean else None)
+    else:
+        kept = rows if every else int(keep.sum())  # type: ignore[union-attr]
+        x = np.empty((kept, k + width_all), dtype=np.float64, order="F")
+        x[:, :k] = xnum if every else xnum[keep]
+        sums = None
+        col = k
+        for name, lv in levels.items():
+            width = len(lv)
+            x[:, col : col + width] = 0.0
+            pos = positions[name]
+            observed = pos >= 0
+            x[np.flatnonzero(observed), col + pos[observed]] = 1.0
+            if spec.missing == "pairwise":
+                x[~observed, col : col + width] = np.nan
+            col += width
     wk = None if w is None else (w if every else w[keep])
     moments: _Complete | _Pairwise = (
-        _Pairwise.of_rows(x, wk) if spec.missing == "pairwise" else _Complete.of_rows(x, wk)
+        _Pairwise.of_rows(x, wk) if spec.missing == "pairwise" else _Complete.of_rows(x, wk, sums)
     )
     return Summary(
         numeric=numeric_names,

@@ -11,6 +11,8 @@ pandas and pyarrow are imported only when the input needs them.
 from __future__ import annotations
 
 import os
+import queue
+import threading
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -33,9 +35,10 @@ TABLE_SUFFIXES = {
     ".arrows": "arrow",
 }
 
-#: Upper bound on rows x columns per block: 4 Mi cells is 32 MB of float64, so a block, its
-#: centred copy and the reader's own buffers stay well under 100 MB whatever the input.
-_BLOCK_CELLS = 1 << 22
+#: Upper bound on rows x columns per block: 1 Mi cells is 8 MB of float64, so a block, its
+#: centred copy and the reader's own buffers stay small whatever the input; larger blocks were
+#: no faster here (the Gram product is memory-bound at these shapes).
+_BLOCK_CELLS = 1 << 20
 _MAX_BLOCK_ROWS = 1 << 16
 
 
@@ -301,14 +304,14 @@ def _from_arrow(obj: Any, forced: frozenset[str], wanted: list[str] | None) -> I
             obj = obj.select(_checked(obj.schema.names, wanted))
         batches = [obj]
     elif isinstance(obj, pa.RecordBatchReader):
-        batches = obj
+        batches = _read_ahead(obj)
     else:
         try:
             import pyarrow.dataset as ds
         except ImportError:  # pragma: no cover - pyarrow always ships dataset today
             ds = None
         if ds is not None and isinstance(obj, ds.Dataset):
-            batches = _dataset_batches(obj, wanted)
+            batches = _read_ahead(_dataset_batches(obj, wanted))
         else:
             raise DataError(f"cannot read a table from {type(obj).__name__}")
     for batch in batches:
@@ -317,6 +320,58 @@ def _from_arrow(obj: Any, forced: frozenset[str], wanted: list[str] | None) -> I
         step = block_rows(batch.num_columns)
         for start in range(0, max(batch.num_rows, 1), step):
             yield _arrow_block(batch.slice(start, step), forced)
+
+
+class _Failed:
+    def __init__(self, exc: BaseException) -> None:
+        self.exc = exc
+
+
+_DONE = object()
+
+
+def _read_ahead(batches: Iterable[Any], depth: int = 1) -> Iterator[Any]:
+    """Decode the next batch on a helper thread while the caller works on the current one.
+
+    Arrow decodes and numpy computes without holding the GIL, so reading and summarizing
+    overlap on two cores. At most ``depth`` decoded batches wait, so memory grows by that
+    many batches only. The helper stops when the consumer stops early.
+    """
+    ready: queue.Queue[Any] = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+
+    def offer(item: Any) -> bool:
+        while not stop.is_set():
+            try:
+                ready.put(item, timeout=0.05)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def produce() -> None:
+        try:
+            for batch in batches:
+                if not offer(batch):
+                    return
+        except BaseException as exc:  # handed to the consumer, raised there
+            offer(_Failed(exc))
+            return
+        offer(_DONE)
+
+    helper = threading.Thread(target=produce, name="knotwork-read-ahead", daemon=True)
+    helper.start()
+    try:
+        while True:
+            item = ready.get()
+            if item is _DONE:
+                return
+            if isinstance(item, _Failed):
+                raise item.exc
+            yield item
+    finally:
+        stop.set()
+        helper.join(timeout=10)
 
 
 def _checked(available: list[str], wanted: list[str]) -> list[str]:
@@ -331,7 +386,11 @@ def _checked(available: list[str], wanted: list[str]) -> list[str]:
 
 def _arrow_block(batch: Any, forced: frozenset[str]) -> Block:
     import pyarrow as pa
-    import pyarrow.compute as pc
+
+    def compute() -> Any:  # imported on first need: plain float64 columns never need it
+        import pyarrow.compute as pc
+
+        return pc
 
     names = batch.schema.names
     if len(set(names)) != len(names):
@@ -346,6 +405,7 @@ def _arrow_block(batch: Any, forced: frozenset[str]) -> Block:
         if name in forced or textual:
             if pa.types.is_dictionary(kind):
                 column = column.cast(kind.value_type)
+            pc = compute()
             if not (pa.types.is_string(column.type) or pa.types.is_large_string(column.type)):
                 column = pc.cast(column, pa.string())
             encoded = pc.dictionary_encode(column)
@@ -356,12 +416,12 @@ def _arrow_block(batch: Any, forced: frozenset[str]) -> Block:
             )
         elif pa.types.is_floating(kind) or pa.types.is_integer(kind) or pa.types.is_boolean(kind):
             if not pa.types.is_float64(kind):
-                column = pc.cast(column, pa.float64())
+                column = compute().cast(column, pa.float64())
             numeric[name] = column.to_numpy(zero_copy_only=False)
         elif pa.types.is_null(kind):
             numeric[name] = np.full(batch.num_rows, np.nan)
         elif pa.types.is_decimal(kind):
-            numeric[name] = pc.cast(column, pa.float64()).to_numpy(zero_copy_only=False)
+            numeric[name] = compute().cast(column, pa.float64()).to_numpy(zero_copy_only=False)
         else:
             raise DataError(
                 f"column {name!r} has Arrow type {kind}, which is neither numeric nor text; "
@@ -420,7 +480,7 @@ def _parquet_reader(path: Path, wanted: list[str] | None) -> Any:
     # Buffered column streams without pre-buffering: pages are read as batches need them, so
     # memory stays bounded by the batch and the page size, not by the row-group size (with
     # pre_buffer, whole row groups, and here whole files, were held at once).
-    handle = pq.ParquetFile(path, buffer_size=1 << 20, pre_buffer=False)
+    handle = pq.ParquetFile(path, buffer_size=1 << 18, pre_buffer=False)
     names = wanted if wanted is not None else handle.schema_arrow.names
     if wanted is not None:
         _checked(handle.schema_arrow.names, wanted)
@@ -438,7 +498,7 @@ def _parquet_dataset(path: Path) -> Any:
     import pyarrow.dataset as ds
 
     scan = ds.ParquetFragmentScanOptions(
-        use_buffered_stream=True, buffer_size=1 << 20, pre_buffer=False
+        use_buffered_stream=True, buffer_size=1 << 18, pre_buffer=False
     )
     fmt = ds.ParquetFileFormat(default_fragment_scan_options=scan)
     dataset = ds.dataset(path, format=fmt)
