@@ -197,14 +197,14 @@ def _table_document(table: _Table, response: str | None, weights: str | None) ->
             name: [levels[c] if c >= 0 else None for c in codes.tolist()]
             for name, (codes, levels) in table.categorical.items()
         }
-    for role, name in (("response", response), ("weights", weights)):
-        if name is not None:
-            if name not in table.numeric:
+    for role, column in (("response", response), ("weights", weights)):
+        if column is not None:
+            if column not in table.numeric:
                 raise DataError(
-                    f"the {role} column {name!r} is not a numeric column of the table",
-                    [(name, "no such numeric column")],
+                    f"the {role} column {column!r} is not a numeric column of the table",
+                    [(column, "no such numeric column")],
                 )
-            doc[role] = name
+            doc[role] = column
     return doc
 
 

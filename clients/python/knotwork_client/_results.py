@@ -48,7 +48,7 @@ class _Record(msgspec.Struct, frozen=True, kw_only=True):
     """Base of every result record: immutable, keyword-only, unknown fields ignored."""
 
 
-class Variable(_Record):
+class Variable(_Record, frozen=True, kw_only=True):
     """Inflation diagnostics of one predictor column.
 
     Attributes
@@ -78,7 +78,7 @@ class Variable(_Record):
     aliased: bool = False
 
 
-class Term(_Record):
+class Term(_Record, frozen=True, kw_only=True):
     """Generalized inflation of a multi-column term (Fox & Monette 1992).
 
     Attributes
@@ -108,7 +108,7 @@ class Term(_Record):
     aliased: bool = False
 
 
-class Tangle(_Record):
+class Tangle(_Record, frozen=True, kw_only=True):
     """A set of variables tangled in one near-dependency.
 
     Attributes
@@ -123,7 +123,7 @@ class Tangle(_Record):
     variables: list[str] = []
 
 
-class Conditioning(_Record):
+class Conditioning(_Record, frozen=True, kw_only=True):
     """Condition indices and variance-decomposition proportions (Belsley, Kuh & Welsch 1980).
 
     Attributes
@@ -154,7 +154,7 @@ class Conditioning(_Record):
     tangles: list[Tangle] = []
 
 
-class FarrarGlauber(_Record):
+class FarrarGlauber(_Record, frozen=True, kw_only=True):
     """Farrar-Glauber (Bartlett) chi-square test of orthogonality.
 
     Attributes
@@ -172,7 +172,7 @@ class FarrarGlauber(_Record):
     p_value: float | None = None
 
 
-class Tests(_Record):
+class Tests(_Record, frozen=True, kw_only=True):
     """Significance-style diagnostics; read them with their caveats (large n rejects easily).
 
     Attributes
@@ -192,7 +192,7 @@ class Tests(_Record):
     variable_f: Any = None
 
 
-class Dependency(_Record):
+class Dependency(_Record, frozen=True, kw_only=True):
     """An exact linear relation among predictors.
 
     Attributes
@@ -207,7 +207,7 @@ class Dependency(_Record):
     weights: list[float] = []
 
 
-class RemovalStep(_Record):
+class RemovalStep(_Record, frozen=True, kw_only=True):
     """One drop in the removal sequence.
 
     Attributes
@@ -225,7 +225,7 @@ class RemovalStep(_Record):
     max_vif_after: float | None = None
 
 
-class Removal(_Record):
+class Removal(_Record, frozen=True, kw_only=True):
     """Greedy removal sequence until every VIF is at most the threshold (common practice).
 
     Attributes
@@ -261,7 +261,7 @@ class Removal(_Record):
         )
 
 
-class RidgePoint(_Record):
+class RidgePoint(_Record, frozen=True, kw_only=True):
     """The ridge trace at one value of k (correlation scale).
 
     Attributes
@@ -288,7 +288,7 @@ class RidgePoint(_Record):
     original_coefficients: list[float | None] | None = None
 
 
-class RidgeChoice(_Record):
+class RidgeChoice(_Record, frozen=True, kw_only=True):
     """A value of k chosen by a published rule.
 
     Attributes
@@ -303,7 +303,7 @@ class RidgeChoice(_Record):
     k: float | None = None
 
 
-class Ridge(_Record):
+class Ridge(_Record, frozen=True, kw_only=True):
     """Ridge remedy: the trace over a grid of k and the k chosen by each rule.
 
     Attributes
@@ -342,7 +342,7 @@ class Ridge(_Record):
         return pd.DataFrame(rows, index=pd.Index([t.k for t in self.trace], name="k"))
 
 
-class Component(_Record):
+class Component(_Record, frozen=True, kw_only=True):
     """Principal components of the correlation matrix and the regression on the kept ones.
 
     Attributes
@@ -375,7 +375,7 @@ class Component(_Record):
     coefficients: Any = None
 
 
-class ResultWarning(_Record):
+class ResultWarning(_Record, frozen=True, kw_only=True):
     """Numerical trouble reported alongside the result.
 
     Attributes
@@ -390,7 +390,7 @@ class ResultWarning(_Record):
     message: str = ""
 
 
-class Assessment(_Record):
+class Assessment(_Record, frozen=True, kw_only=True):
     """The service's answer to one model: every diagnostic that was asked for.
 
     Attributes
@@ -485,7 +485,7 @@ class Assessment(_Record):
         return (self.ridge or Ridge()).to_frame([v.name for v in self.variables])
 
 
-class FieldError(_Record):
+class FieldError(_Record, frozen=True, kw_only=True):
     """One field the service objected to.
 
     Attributes
@@ -500,7 +500,7 @@ class FieldError(_Record):
     reason: str = ""
 
 
-class ProblemDetails(_Record):
+class ProblemDetails(_Record, frozen=True, kw_only=True):
     """A problem document (RFC 9457) as the service sends it for every error.
 
     Attributes

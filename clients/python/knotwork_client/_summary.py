@@ -665,8 +665,8 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
         x[:, :k] = xnum if every else xnum[keep]
         sums = None
         col = k
-        for name, lv in levels.items():
-            width = len(lv)
+        for name, used_levels in levels.items():
+            width = len(used_levels)
             x[:, col : col + width] = 0.0
             pos = positions[name]
             observed = pos >= 0
