@@ -12,6 +12,8 @@ from collections.abc import Awaitable, Callable, Iterable, Mapping
 from types import TracebackType
 from typing import Any
 
+import anyio
+import anyio.to_thread
 import httpx
 import msgspec
 
@@ -388,8 +390,6 @@ class AsyncClient(_BaseClient):
             clock=clock,
         )
         if sleep is None:
-            import anyio
-
             sleep = anyio.sleep
         self._sleep = sleep
         self._http = httpx.AsyncClient(
@@ -452,7 +452,9 @@ class AsyncClient(_BaseClient):
         return self._assessment(await self._assess_document(data, options))
 
     async def _assess_document(self, data: Any, options: dict[str, Any]) -> Any:
-        return await self._post_assess(self._assess_payload(data, dict(options)))
+        # Reading a file or encoding a large table is CPU and I/O work: keep it off the loop.
+        payload = await anyio.to_thread.run_sync(self._assess_payload, data, dict(options))
+        return await self._post_assess(payload)
 
     async def _post_assess(self, payload: Payload) -> Any:
         response = await self._send(
@@ -466,7 +468,7 @@ class AsyncClient(_BaseClient):
 
     async def assess_batch(self, items: Iterable[Any], **options: Any) -> list[BatchResult]:
         """Assess many models in one request (see :meth:`Client.assess_batch`)."""
-        body = self._batch_payload(items, dict(options))
+        body = await anyio.to_thread.run_sync(self._batch_payload, items, dict(options))
         response = await self._send(
             "POST", "/v1/assess/batch", content=body, content_type="application/json"
         )
