@@ -120,6 +120,28 @@ def test_sigterm_lets_the_request_in_flight_finish(tmp_path: Path) -> None:
     assert any("Application shutdown complete" in line for line in lines)
 
 
+def test_a_body_that_never_arrives_times_out(tmp_path: Path) -> None:
+    import socket
+
+    with serve(tmp_path, {"KNOTWORK_REQUEST_TIMEOUT_S": "1"}) as server:
+        host, port = server.url.removeprefix("http://").split(":")
+        with socket.create_connection((host, int(port)), timeout=10) as sock:
+            sock.sendall(
+                b"POST /v1/assess HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+                b'Content-Length: 1000\r\n\r\n{"input": '
+            )
+            started = time.monotonic()
+            answer = b""
+            while b"\r\n\r\n" not in answer:
+                chunk = sock.recv(65536)
+                if not chunk:
+                    break
+                answer += chunk
+        assert time.monotonic() - started < 8
+        assert answer.startswith(b"HTTP/1.1 408"), answer[:200]
+        assert b"application/problem+json" in answer
+
+
 def test_tokens_from_a_file(tmp_path: Path) -> None:
     tokens = tmp_path / "tokens"
     tokens.write_text(f"# current\n{TOKEN}\n")

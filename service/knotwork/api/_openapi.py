@@ -201,6 +201,11 @@ _COMMON_RESPONSES = {
         "The bearer token is not accepted.",
         _problem_example(403, "forbidden", "the bearer token is not accepted", None, ""),
     ),
+    408: _problem(
+        "The body did not arrive within the time limit.",
+        _problem_example(408, "body-timeout", "the body did not arrive within 30 s; send it at "
+                         "once, or a smaller one", None, ""),
+    ),
     413: _problem(
         "The body, the number of cells or columns, or the number of batch items is above the "
         "configured limit.",

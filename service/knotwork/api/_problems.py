@@ -61,6 +61,7 @@ TITLES: Mapping[str, str] = {
     "not-found": "No such resource",
     "method-not-allowed": "Method not allowed on this resource",
     "body-too-large": "The body is larger than allowed",
+    "body-timeout": "The body did not arrive in time",
     "too-many-cells": "The input has more numbers than allowed",
     "too-many-columns": "The input has more columns than allowed",
     "too-many-items": "The batch has more items than allowed",
@@ -82,7 +83,7 @@ _STATUS_SLUGS = {
     503: "saturated",
 }
 # Headers of a framework exception that a client needs, kept on the problem response.
-_KEPT_HEADERS = ("allow", "retry-after", "www-authenticate")
+_KEPT_HEADERS = ("allow", "connection", "retry-after", "www-authenticate")
 
 
 class ProblemError(msgspec.Struct, frozen=True, kw_only=True):

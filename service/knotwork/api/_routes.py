@@ -173,7 +173,7 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
     if media == JSON and query:
         reason = "a JSON body carries its options in the body; remove the query parameters"
         raise InvalidRequest(reason, [Fault("/query", reason)])
-    body = await read_body(request, state.settings.max_body_bytes)
+    body = await read_body(request, state.settings.max_body_bytes, state.settings.request_timeout_s)
     pool: WorkPool = state.pool
     result, queue_s, compute_s = await pool.run(_assess_one, body, media, query, state.limits)
     _record("/v1/assess", queue_s, compute_s, encoding=media)
@@ -201,7 +201,7 @@ async def assess_batch(request: Request[Any, Any, Any]) -> BatchResponse:
     if request.scope.get("query_string"):
         reason = "a batch carries its options in each item; remove the query parameters"
         raise InvalidRequest(reason, [Fault("/query", reason)])
-    body = await read_body(request, state.settings.max_body_bytes)
+    body = await read_body(request, state.settings.max_body_bytes, state.settings.request_timeout_s)
     pool: WorkPool = state.pool
     timeout_s = pool.timeout_s
     deadline = time.monotonic() + timeout_s

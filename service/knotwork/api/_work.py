@@ -21,6 +21,7 @@ import anyio.to_thread
 from litestar import Request
 from litestar.exceptions.http_exceptions import RequestEntityTooLarge
 
+from ._context import current_request
 from ._metrics import IN_FLIGHT, REJECTED
 from ._problems import ApiError
 
@@ -149,18 +150,38 @@ class WorkPool:
             task.exception()
 
 
-async def read_body(request: Request[Any, Any, Any], limit: int) -> bytearray:
-    """Read the whole body into one preallocated buffer.
+async def read_body(request: Request[Any, Any, Any], limit: int, timeout_s: float) -> bytearray:
+    """Read the whole body into one preallocated buffer, within ``timeout_s``.
 
     A ``Content-Length`` above ``limit`` is refused before a byte is read; a chunked body is
     cut off at the limit. Streaming into a buffer of the announced size avoids assembling the
-    body from a list of chunks, which costs about as much as decoding it.
+    body from a list of chunks, which costs about as much as decoding it. The time spent is
+    recorded for the access log (``read_ms``).
 
     Raises
     ------
     ApiError
-        400 for a body that does not match its Content-Length, 413 beyond the limit.
+        400 for a body that does not match its Content-Length, 408 when it does not arrive in
+        time, 413 beyond the limit.
     """
+    started = time.perf_counter()
+    try:
+        with anyio.fail_after(timeout_s):
+            return await _read_body(request, limit)
+    except TimeoutError:
+        raise ApiError(
+            408,
+            "body-timeout",
+            f"the body did not arrive within {timeout_s:g} s; send it at once, or a smaller one",
+            headers={"Connection": "close"},
+        ) from None
+    finally:
+        info = current_request()
+        if info is not None:
+            info.timings["read_ms"] = (time.perf_counter() - started) * 1000
+
+
+async def _read_body(request: Request[Any, Any, Any], limit: int) -> bytearray:
     too_large = ApiError(
         413,
         "body-too-large",
