@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 from fractions import Fraction
 
 import msgspec
@@ -10,6 +11,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from kc_support import REGIONS, bakery_frame
 from numpy.testing import assert_allclose
 
@@ -447,3 +450,39 @@ def test_reading_ahead_stops_cleanly_on_a_late_error(tmp_path, bakery):
     reader = pa.RecordBatchReader.from_batches(table.schema, failing())
     with pytest.raises(OSError, match="the disk went away"):
         summarize(reader)
+
+
+# --- invariants (hypothesis) ---------------------------------------------------------------
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    cuts=st.lists(st.integers(min_value=1, max_value=119), max_size=6, unique=True),
+    seed=st.integers(min_value=0, max_value=2**32 - 1),
+    weighted=st.booleans(),
+    pairwise=st.booleans(),
+)
+def test_any_split_merges_to_the_whole(cuts, seed, weighted, pairwise):
+    rng = np.random.default_rng(seed)
+    frame = pd.DataFrame(
+        {
+            "a": rng.normal(1e3, 1.0, 120),
+            "b": rng.normal(size=120),
+            "g": pd.Series(rng.choice(["p", "q", "r"], 120, p=[0.8, 0.15, 0.05]), dtype="str"),
+            "w": rng.integers(0, 3, 120).astype(float),
+        }
+    )
+    frame["c"] = frame["a"] * 0.5 + rng.normal(size=120)
+    if pairwise:
+        frame.loc[rng.choice(120, 10, replace=False), "b"] = np.nan
+    kwargs = {"weights": "w" if weighted else None, "missing": "pairwise" if pairwise else "reject"}
+    whole = summarize(frame, **kwargs)
+    bounds = [0, *sorted(cuts), 120]
+    parts = [summarize(frame.iloc[i:j], **kwargs) for i, j in itertools.pairwise(bounds)]
+    merged = merge_summaries(reversed(parts))
+    shuffled = summarize(frame.sample(frac=1.0, random_state=seed % 1000), **kwargs)
+    for other in (merged, shuffled):
+        assert other.columns == whole.columns
+        assert other.n == pytest.approx(whole.n, rel=1e-12)
+        assert_allclose(other.correlation, whole.correlation, rtol=1e-9, atol=1e-12)
+        assert_allclose(other.comoments, whole.comoments, rtol=1e-9, atol=1e-9)
