@@ -7,9 +7,9 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 
 from ._dependencies import DependencyReport
+from ._linalg import inverse_spd, logdet_spd
 
 
 @dataclass(frozen=True, slots=True)
@@ -77,26 +77,6 @@ class TermInflation:
     aliased: bool
 
 
-def _inverse_spd(a: np.ndarray) -> np.ndarray:
-    """Inverse of a symmetric positive-definite matrix through its Cholesky factor."""
-    c, info = scipy.linalg.lapack.dpotrf(a, lower=False)
-    if info != 0:
-        raise np.linalg.LinAlgError("matrix is not positive definite")
-    inv, info = scipy.linalg.lapack.dpotri(c, lower=False)
-    if info != 0:  # pragma: no cover - dpotrf succeeded, so dpotri cannot fail
-        raise np.linalg.LinAlgError("inversion failed")
-    return np.triu(inv) + np.triu(inv, 1).T
-
-
-def _logdet_spd(a: np.ndarray) -> float:
-    if a.shape[0] == 0:
-        return 0.0
-    c, info = scipy.linalg.lapack.dpotrf(a, lower=False)
-    if info != 0:
-        raise np.linalg.LinAlgError("matrix is not positive definite")
-    return float(2.0 * np.sum(np.log(np.diag(c))))
-
-
 def variance_inflation(
     matrix: np.ndarray,
     names: Sequence[str],
@@ -149,7 +129,7 @@ def variance_inflation(
     keep = dependencies.independent
     sub = matrix[np.ix_(keep, keep)]
     try:
-        inv = _inverse_spd(sub)
+        inv = inverse_spd(sub)
     except np.linalg.LinAlgError:
         inv = np.linalg.pinv(sub, hermitian=True)
     vif[keep] = np.diag(inv)
@@ -217,9 +197,9 @@ def generalized_inflation(
         others = [k for k in keep if k not in cols]
         full = [*cols, *others]
         log_gvif = (
-            _logdet_spd(matrix[np.ix_(cols, cols)])
-            + _logdet_spd(matrix[np.ix_(others, others)])
-            - _logdet_spd(matrix[np.ix_(full, full)])
+            logdet_spd(matrix[np.ix_(cols, cols)])
+            + logdet_spd(matrix[np.ix_(others, others)])
+            - logdet_spd(matrix[np.ix_(full, full)])
         )
         gvif = max(math.exp(log_gvif), 1.0)
         scaled = gvif ** (1.0 / (2.0 * df))

@@ -16,6 +16,7 @@ import scipy.linalg
 
 from ._dependencies import NULL_RTOL, DependencyReport, Spectrum, find_dependencies
 from ._errors import InputError, MatrixError, OptionError, Problem
+from ._linalg import inverse_spd, logdet_spd
 
 #: Inflations within this relative distance of the largest count as tied, so that values equal
 #: in exact arithmetic but different in the last bits are broken by the documented rule and not
@@ -253,27 +254,6 @@ _NOTES = (
 # Linear algebra helpers
 
 
-def _inverse_spd(a: np.ndarray) -> np.ndarray:
-    """Inverse of a symmetric positive-definite matrix through its Cholesky factor (potrf/potri)."""
-    if a.shape[0] == 0:
-        return np.zeros((0, 0))
-    c, info = scipy.linalg.lapack.dpotrf(a, lower=False)
-    if info != 0:
-        raise np.linalg.LinAlgError("matrix is not positive definite")
-    inv, info = scipy.linalg.lapack.dpotri(c, lower=False)
-    if info != 0:  # pragma: no cover - dpotrf succeeded, so dpotri cannot fail
-        raise np.linalg.LinAlgError("inversion failed")
-    upper = np.triu(inv)
-    return upper + np.triu(inv, 1).T
-
-
-def _logdet_spd(a: np.ndarray) -> float:
-    c, info = scipy.linalg.lapack.dpotrf(a, lower=False)
-    if info != 0:
-        raise np.linalg.LinAlgError("matrix is not positive definite")
-    return float(2.0 * np.sum(np.log(np.diag(c))))
-
-
 class _Downdated:
     """The inverse of M over the active columns, kept lazily as ``A0 - Ut' Ut``.
 
@@ -302,7 +282,7 @@ class _Downdated:
     def _factor(self, active: np.ndarray, inverse: np.ndarray | None = None) -> None:
         idx = np.flatnonzero(active)
         if inverse is None:
-            inverse = _inverse_spd(self.m[np.ix_(idx, idx)])
+            inverse = inverse_spd(self.m[np.ix_(idx, idx)])
         mag = np.diag(inverse).copy()
         self.scale0 = float(mag.max()) if mag.size else 1.0
         self._reset(idx, np.ascontiguousarray(inverse), mag)
@@ -467,7 +447,7 @@ class _Units:
         self.multi = [int(u) for u in np.flatnonzero(self.df > 1)]
         self.logdet_m = np.zeros(self.count)
         for u in self.multi:
-            self.logdet_m[u] = _logdet_spd(m[np.ix_(self.cols[u], self.cols[u])])
+            self.logdet_m[u] = logdet_spd(m[np.ix_(self.cols[u], self.cols[u])])
         self.response: np.ndarray | None = None
         if r_xy is not None:
             resp = np.zeros(self.count)
@@ -510,7 +490,7 @@ class _Units:
         out[self.single] = eng.vif(self.single_cols)
         for u in self.multi:
             if active_units[u]:
-                ld = _logdet_spd(eng.block(self.cols[u]))
+                ld = logdet_spd(eng.block(self.cols[u]))
                 out[u] = math.exp((self.logdet_m[u] + ld) / self.df[u])
         out[~active_units] = np.nan
         return out
@@ -530,7 +510,7 @@ def _dependencies_of(
     space in the sense of :class:`Spectrum`, and the inverse is kept for the sequence.
     """
     try:
-        inverse = _inverse_spd(m)
+        inverse = inverse_spd(m)
     except np.linalg.LinAlgError:
         inverse = None
     if inverse is not None:
@@ -669,7 +649,7 @@ def _holds(
         wcols = eng.columns(cu)  # (q, du), local rows
         auu = wcols[lu]
         du = int(units.df[u])
-        ld_auu = _logdet_spd(auu)
+        ld_auu = logdet_spd(auu)
         best_val, best_v = math.inf, -1
         others = [int(v) for v in np.flatnonzero(active) if v != u]
         singles = np.array([v for v in others if units.df[v] == 1], dtype=np.intp)
@@ -688,7 +668,7 @@ def _holds(
             cv = units.cols[v]
             auv = wcols[eng.loc[cv]]  # (dv, du)
             reduced = auu - auv.T @ np.linalg.solve(eng.block(cv), auv)
-            val = math.exp((units.logdet_m[u] + _logdet_spd(reduced)) / du)
+            val = math.exp((units.logdet_m[u] + logdet_spd(reduced)) / du)
             if val < best_val * (1.0 - TIE_RTOL) or (val <= best_val and v > best_v):
                 best_val, best_v = val, v
         out.append(
@@ -1041,7 +1021,7 @@ def removal_sequence(
             r2_full = float(np.sum(c * c / spec.values[keep]))
         else:
             if inverse is None:
-                inverse = _inverse_spd(m)
+                inverse = inverse_spd(m)
             r2_full = float(r @ inverse @ r)
 
     def run(ordering: str) -> Removal:
