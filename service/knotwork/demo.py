@@ -12,9 +12,13 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
+
+if TYPE_CHECKING:
+    from knotwork.core import Assessment
 
 REGIONS = ("hills", "lakes", "plains", "shore")
 
@@ -66,9 +70,8 @@ def _fmt(x: float | None, width: int = 10) -> str:
     return f"{x:{width}.3e}"
 
 
-def render(result: object) -> str:
+def render(a: Assessment) -> str:
     """Render an assessment as readable text (for the demo and the command line)."""
-    a = result
     lines = [
         f"knotwork assessment: {a.p} predictors, n = {a.n:g}, input {a.input_kind}, "
         f"intercept {'yes' if a.intercept else 'no'}, threshold {a.threshold:g}",
@@ -99,7 +102,7 @@ def render(result: object) -> str:
         for d in a.dependencies:
             terms = " + ".join(f"{w:.4g}*{v}" for v, w in zip(d.variables, d.weights, strict=True))
             lines.append(f"exact relation (standardized): {terms} = 0")
-    removal = getattr(a, "removal", None)
+    removal = a.removal
     if removal is not None:
         lines += ["", f"removal at threshold {removal.threshold:g}:"]
         for step in removal.steps:
@@ -107,7 +110,7 @@ def render(result: object) -> str:
             after = "-" if step.max_vif_after is None else f"{step.max_vif_after:.3f}"
             lines.append(f"  drop {step.drop:<20} VIF {vif:>10}  largest left {after}")
         lines.append(f"  kept: {', '.join(removal.kept)}")
-    ridge = getattr(a, "ridge", None)
+    ridge = a.ridge
     if ridge is not None:
         picks = ", ".join(
             f"{ch.rule} k={ch.k:.4g}"
@@ -115,7 +118,7 @@ def render(result: object) -> str:
             if ch.k is not None and math.isfinite(ch.k)
         )
         lines += ["", f"ridge (k on the {ridge.k_scale} scale): {picks}"]
-    comp = getattr(a, "components", None)
+    comp = a.components
     if comp is not None:
         lines.append(
             f"principal components: keep {len(comp.kept)} of {len(comp.eigenvalues)} "

@@ -753,17 +753,17 @@ def from_table(
             f"at least two predictors are needed; got {len(names)}"
             + (" (the response and weights columns are not predictors)" if names else ""),
         )
-    columns = [a for _, a, _ in predictors] + ([y] if y is not None else [])
+    design = [a for _, a, _ in predictors] + ([y] if y is not None else [])
     pointers = [ptr for _, _, ptr in predictors]
     if response is not None:
         pointers.append(f"/columns/{esc(response)}")
 
     if missing == "pairwise" and counts:
-        x = np.column_stack([c[keep] for c in columns])
+        x = np.column_stack([c[keep] for c in design])
         wk = None if w is None else w[keep]
         return _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
 
-    total, mean, com = _comoments(columns, w, keep)
+    total, mean, com = _comoments(design, w, keep)
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     return Summary(
         names=names,
