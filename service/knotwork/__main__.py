@@ -14,6 +14,7 @@ import argparse
 import ipaddress
 import json
 import os
+import shutil
 import sys
 import tempfile
 from typing import Any
@@ -112,9 +113,11 @@ def main(argv: list[str] | None = None) -> int:
             file=sys.stderr,
         )
         return 2
+    metrics_dir = None
     if workers > 1 and not os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
         # Worker processes must share their counters, or each scrape sees one worker's.
-        os.environ["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix="knotwork-metrics-")
+        metrics_dir = tempfile.mkdtemp(prefix="knotwork-metrics-")
+        os.environ["PROMETHEUS_MULTIPROC_DIR"] = metrics_dir
 
     print(
         f"knotwork: serving on http://{args.host}:{args.port} ({args.server}, {workers} "
@@ -122,9 +125,13 @@ def main(argv: list[str] | None = None) -> int:
         f"\nTry:\n  {curl_line(args.host, args.port, token_needed=not settings.open)}",
         flush=True,
     )
-    if args.server == "granian":
-        return _run_granian(args.host, args.port, workers)
-    return _run_uvicorn(settings, args.host, args.port, workers)
+    try:
+        if args.server == "granian":
+            return _run_granian(args.host, args.port, workers)
+        return _run_uvicorn(settings, args.host, args.port, workers)
+    finally:
+        if metrics_dir is not None:
+            shutil.rmtree(metrics_dir, ignore_errors=True)
 
 
 def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
