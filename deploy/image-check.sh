@@ -171,8 +171,8 @@ volume_path = "$state/volumes"
 [network]
 network_config_dir = "$state/networks"
 EOF
-    # pip settings for the build only (mounted at /etc/pip.conf in RUN steps, never copied into
-    # a layer): the host's CA bundle, and the host's index when it is an http(s) one.
+    # pip settings for the build only (the "pipconf" build secret, never in a layer): the host's
+    # CA bundle, and the host's index when it is an http(s) one.
     local index
     index=$(python3 -m pip config get global.index-url 2>/dev/null || true)
     {
@@ -217,12 +217,13 @@ make_base() {
 }
 
 build_image() {
-    # chroot isolation shares the host's network, so pip in RUN steps reaches the index; the CA
-    # bundle and pip.conf are bind mounts for the build only.
+    # chroot isolation shares the host's network, so pip in RUN steps reaches the index. The
+    # host's CA bundle is bind-mounted over the base's own for the build only (mounting over an
+    # existing file leaves no trace); pip.conf goes in as a build secret, for the download only.
     buildah bud --isolation chroot --network host --format docker --pull=never \
         --build-arg BASE_IMAGE="$base_image" \
         --ignorefile "$here/Containerfile.dockerignore" \
-        -v "$ca_bundle:$ca_bundle:ro" -v "$state/pip.conf:/etc/pip.conf:ro" \
+        -v "$ca_bundle:$ca_bundle:ro" --secret "id=pipconf,src=$state/pip.conf" \
         -f "$here/Containerfile" -t "$app_image" "$repo" >"$state/build.log" 2>&1 ||
         { tail -40 "$state/build.log"; fail "build"; }
     grep -E '^(STEP|COMMIT|Successfully)' "$state/build.log" | tail -3
