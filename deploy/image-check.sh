@@ -249,6 +249,10 @@ image_facts() {
         -c 'command -v curl || command -v wget'; then
         fail "curl or wget in the image"
     fi
+    if podman run --rm --no-healthcheck --entrypoint sh "$app_image" \
+        -c 'test -e /etc/pip.conf || test -e /etc/xdg/pip || test -e /root/.config/pip'; then
+        fail "pip configuration from the build is in the image"
+    fi
     local venv
     venv=$(podman run --rm --no-healthcheck "$app_image" python -c 'import importlib.metadata as m
 names = sorted(d.metadata["Name"].lower() for d in m.distributions())
