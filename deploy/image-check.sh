@@ -132,6 +132,13 @@ apt_mirror() {
         m=$(sed -E 's/\[[^]]*\]//' /etc/apt/sources.list |
             awk -v suite="$suite" '$1 == "deb" && $3 == suite { print $2; exit }')
     fi
+    if [ -z "$m" ]; then
+        # No source for this suite (another release than the host's): the host's main mirror.
+        m=$(cat /etc/apt/sources.list.d/*.sources /etc/apt/sources.list 2>/dev/null |
+            sed -E 's/\[[^]]*\]//' | awk '
+                /^URIs:/ && $2 !~ /security/ { print $2; exit }
+                $1 == "deb" && $2 !~ /security/ { print $2; exit }')
+    fi
     echo "${m:-http://deb.debian.org/debian}"
 }
 
