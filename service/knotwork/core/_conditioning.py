@@ -211,16 +211,16 @@ def condition_diagnostics(
     phi = np.zeros((m, m))  # phi[j, k]
     phi[:, live] = vectors[:, live] ** 2 / values[live]
     shares = phi / phi.sum(axis=1, keepdims=True)
-    proportions = tuple(
-        tuple(float(shares[j, k]) for j in range(m)) if live[k] else (None,) * m for k in range(m)
-    )
+    # Rows follow the components; tolist() converts a whole row at C speed.
+    by_component = shares.T.tolist()
+    proportions = tuple(tuple(by_component[k]) if live[k] else (None,) * m for k in range(m))
 
     tangles = []
     for k in range(m):
         eta = indices[k]
         if eta is None or eta <= index_threshold:
             continue
-        members = [j for j in range(m) if shares[j, k] > proportion_threshold]
+        members = np.flatnonzero(shares[:, k] > proportion_threshold).tolist()
         if len(members) >= 2:
             tangles.append(
                 Tangle(

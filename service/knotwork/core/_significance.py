@@ -119,7 +119,10 @@ def _whole(x: float) -> float:
 
 def _rows_with_none(a: np.ndarray) -> tuple[tuple[float | None, ...], ...]:
     """A matrix as nested tuples of floats, with None where the value is NaN (undefined)."""
-    return tuple(tuple(None if v != v else v for v in row) for row in a.tolist())
+    rows = a.tolist()
+    for i, j in np.argwhere(np.isnan(a)).tolist():
+        rows[i][j] = None
+    return tuple(map(tuple, rows))
 
 
 def _log_det_cholesky(matrix: np.ndarray) -> tuple[float | None, np.ndarray | None]:
