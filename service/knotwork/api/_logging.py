@@ -85,7 +85,7 @@ class AccessLog:
         status = 0
         header = (b"x-request-id", request_id.encode("latin-1"))
 
-        async def counting_receive() -> Message:
+        async def counting_receive() -> Any:
             message = await receive()
             if message["type"] == "http.request":
                 sizes["in"] += len(message.get("body", b""))
@@ -102,11 +102,11 @@ class AccessLog:
 
         start = time.perf_counter()
         try:
-            await self.app(scope, counting_receive, counting_send)
+            await self.app(scope, counting_receive, counting_send)  # type: ignore[arg-type]
         finally:
             fields: dict[str, Any] = {
                 "request_id": request_id,
-                "method": scope["method"],
+                "method": scope.get("method", ""),
                 "route": scope.get("path_template") or "(unmatched)",
                 "status": status,
                 "bytes_in": sizes["in"],

@@ -24,6 +24,7 @@ from litestar.openapi.spec import (
     OpenAPIMediaType,
     Operation,
     Parameter,
+    Reference,
     RequestBody,
 )
 
@@ -47,7 +48,7 @@ def _ref(name: str) -> dict[str, str]:
     return {"$ref": _REF.format(name=name)}
 
 
-def _examples(**examples: dict[str, Any]) -> dict[str, Example]:
+def _examples(**examples: dict[str, Any]) -> dict[str, Example | Reference]:
     return {
         name: Example(summary=name.replace("_", " "), value=value)
         for name, value in examples.items()

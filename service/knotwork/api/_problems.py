@@ -203,7 +203,8 @@ def problem_of(
             ProblemError(pointer=where.locate(scope, p.pointer), reason=p.reason)
             for p in getattr(exc, "problems", ())
         ]
-        return _document(422, getattr(exc, "kind", "invalid-input"), exc.message, errors), {}
+        message = getattr(exc, "message", str(exc))
+        return _document(422, getattr(exc, "kind", "invalid-input"), message, errors), {}
     if isinstance(exc, HTTPException):
         status = exc.status_code
         if status >= 500:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from knotwork.core import (
     Assessment,
     Options,
@@ -22,19 +24,18 @@ __all__ = ["core_options", "run", "summarize"]
 def core_options(options: AssessOptions) -> Options:
     """The core's :class:`Options` for wire options (``missing`` and ``repair`` go elsewhere)."""
     ridge = options.ridge
-    components = options.components
-    kwargs = {}
-    if components is not None:
-        kwargs["components_rule"] = components.rule
-        kwargs["components_limit"] = components.limit
-    return Options(
+    result = Options(
         threshold=options.threshold,
         protect=tuple(options.protect),
         intercept=options.intercept,
         sections=tuple(options.sections) if options.sections is not None else None,
         ridge_grid=tuple(ridge.grid) if ridge is not None and ridge.grid is not None else None,
-        **kwargs,
     )
+    components = options.components
+    if components is not None:
+        # Only what the client set: the core keeps its own defaults otherwise.
+        result = replace(result, components_rule=components.rule, components_limit=components.limit)
+    return result
 
 
 def summarize(prepared: Prepared) -> Summary:

@@ -113,14 +113,15 @@ def options_from_query(query: str | bytes) -> tuple[AssessOptions, str | None, s
     except msgspec.ValidationError as exc:
         pointer, reason = msgspec_fault(exc)
         where = Origin(query=True).locate("options", pointer)
+        parameter = where.removeprefix("/query/")
         raise InvalidRequest(
-            f"query parameter {where[7:]}: {reason}", [Fault(where, reason)]
+            f"query parameter {parameter}: {reason}", [Fault(where, reason)]
         ) from None
 
-    names = {}
+    names: dict[str, str | None] = {}
     for key in ("response", "weights"):
-        value = scalars.get(key)
-        if value is not None and not value:
+        column = scalars.get(key)
+        if column is not None and not column:
             raise _fail(key, "must name a column")
-        names[key] = value
+        names[key] = column
     return options, names["response"], names["weights"]

@@ -113,10 +113,13 @@ Terms = Annotated[
 
 
 class _Wire(Struct, frozen=True, kw_only=True, forbid_unknown_fields=True):
-    """Base of every request Struct: immutable, keyword-only, unknown fields rejected."""
+    """Base of every request Struct: immutable, keyword-only, unknown fields rejected.
+
+    Subclasses inherit these settings; they repeat ``frozen=True`` for type checkers.
+    """
 
 
-class TableInput(_Wire, tag="table", tag_field="kind"):
+class TableInput(_Wire, frozen=True, tag="table", tag_field="kind"):
     """Rows of data, column by column."""
 
     columns: Annotated[
@@ -144,7 +147,7 @@ class TableInput(_Wire, tag="table", tag_field="kind"):
     ) = None
 
 
-class CorrelationResponse(_Wire):
+class CorrelationResponse(_Wire, frozen=True):
     """The response variable of a correlation input: its correlation with each predictor."""
 
     name: Name
@@ -153,7 +156,7 @@ class CorrelationResponse(_Wire):
     ]
 
 
-class CorrelationInput(_Wire, tag="correlation", tag_field="kind"):
+class CorrelationInput(_Wire, frozen=True, tag="correlation", tag_field="kind"):
     """A correlation matrix of the predictors and the number of observations behind it."""
 
     names: Annotated[list[Name], Meta(min_length=1, description="Predictor names, in order.")]
@@ -166,7 +169,7 @@ class CorrelationInput(_Wire, tag="correlation", tag_field="kind"):
     terms: Terms | None = None
 
 
-class MomentsPart(_Wire):
+class MomentsPart(_Wire, frozen=True):
     """Summary moments of one part of the data."""
 
     n: Count
@@ -177,7 +180,7 @@ class MomentsPart(_Wire):
     ]
 
 
-class MomentsInput(_Wire, tag="moments", tag_field="kind"):
+class MomentsInput(_Wire, frozen=True, tag="moments", tag_field="kind"):
     """Summary moments: n, means and covariance, or a list of parts merged by the service."""
 
     names: Annotated[
@@ -213,7 +216,7 @@ class MomentsInput(_Wire, tag="moments", tag_field="kind"):
 Input = TableInput | CorrelationInput | MomentsInput
 
 
-class RidgeOptions(_Wire):
+class RidgeOptions(_Wire, frozen=True):
     """Settings of the ridge trace."""
 
     grid: (
@@ -229,7 +232,7 @@ class RidgeOptions(_Wire):
     ) = None
 
 
-class ComponentsOptions(_Wire):
+class ComponentsOptions(_Wire, frozen=True):
     """Settings of principal components."""
 
     rule: Annotated[
@@ -256,7 +259,7 @@ class ComponentsOptions(_Wire):
     ) = None
 
 
-class AssessOptions(_Wire):
+class AssessOptions(_Wire, frozen=True):
     """What to compute and how; every field has a safe default."""
 
     threshold: Annotated[
@@ -312,7 +315,7 @@ class AssessOptions(_Wire):
     ) = None
 
 
-class AssessRequest(_Wire):
+class AssessRequest(_Wire, frozen=True):
     """One assessment: the input and, optionally, options."""
 
     input: Annotated[
@@ -324,7 +327,7 @@ class AssessRequest(_Wire):
     ] = msgspec.field(default_factory=AssessOptions)
 
 
-class BatchRequest(_Wire):
+class BatchRequest(_Wire, frozen=True):
     """Many assessments, each answered on its own."""
 
     items: Annotated[
