@@ -532,3 +532,15 @@ def test_no_tables_gives_the_same_sequence(longley_data):
     b = removal_sequence(r, names, threshold=2, tables=False)
     assert [s.drop for s in a.steps] == [s.drop for s in b.steps]
     assert all(s.vifs is None for s in b.steps)
+
+
+def test_threshold_just_above_one_keeps_one_predictor() -> None:
+    # Found by contract fuzzing: the smallest threshold the schema allows. Rounding can leave a
+    # lone predictor's VIF at 1 + 1e-16; the sequence must stop with one predictor kept.
+    rng = np.random.default_rng(3)
+    x = rng.normal(size=(40, 4))
+    x[:, 3] += x[:, 0]
+    r = np.corrcoef(x, rowvar=False)
+    removal = removal_sequence(r, ["a", "b", "c", "d"], threshold=1.0000000000000002)
+    assert len(removal.kept) == 1
+    assert len(removal.steps) == 3

@@ -799,7 +799,9 @@ def _sequence(
     any_protected = bool(protected.any())
     by_response = ordering == LEAST_RESPONSE_CORRELATION and response is not None
     n_active = int(np.count_nonzero(col_active))
-    while True:
+    while np.count_nonzero(active) > 1:
+        # A lone predictor (or term) has inflation 1 by definition; with a threshold just
+        # above 1 rounding could otherwise drop it and leave nothing to assess.
         eligible = np.where(active & unprotected, infl, -np.inf)
         top = float(eligible.max())
         if not top > threshold:
