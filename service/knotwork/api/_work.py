@@ -21,6 +21,8 @@ import anyio.to_thread
 from litestar import Request
 from litestar.exceptions.http_exceptions import RequestEntityTooLarge
 
+from knotwork.core import stop_when
+
 from ._context import current_request
 from ._metrics import IN_FLIGHT, REJECTED
 from ._problems import ApiError
@@ -117,7 +119,10 @@ class WorkPool:
             if expired.is_set():
                 raise Expired
             try:
-                return fn(*args)
+                # The core checks this between stages and row blocks, so work whose request
+                # has timed out stops soon and gives its slot back.
+                with stop_when(expired.is_set):
+                    return fn(*args)
             finally:
                 spans["compute"] = time.perf_counter() - started
 
@@ -129,7 +134,7 @@ class WorkPool:
                 IN_FLIGHT.dec()
 
         # The job is its own task, so a time-out here cannot cancel it: its thread keeps its
-        # slot until it ends, and the limiter's count stays true.
+        # slot until it ends (at the core's next checkpoint), and the limiter stays true.
         task = asyncio.ensure_future(job())
         self._tasks.add(task)
         task.add_done_callback(self._forget)

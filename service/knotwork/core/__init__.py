@@ -28,6 +28,7 @@ from ._inflation import (
     generalized_inflation,
     variance_inflation,
 )
+from ._interrupt import Interrupted, checkpoint, stop_when
 from ._notices import CAUTIONS, CODES, Notice
 from ._remedies import Comparison, RemedyRow, compare_remedies
 from ._removal import Removal, RemovalStep, StillHigh, removal_sequence
@@ -63,6 +64,7 @@ __all__ = [
     "DependencyReport",
     "FarrarGlauber",
     "InputError",
+    "Interrupted",
     "KnotworkError",
     "MatrixError",
     "MissingValuesError",
@@ -90,6 +92,7 @@ __all__ = [
     "VariableInflation",
     "assess",
     "check_options",
+    "checkpoint",
     "collinearity_tests",
     "compare_remedies",
     "condition_diagnostics",
@@ -105,5 +108,6 @@ __all__ = [
     "principal_components",
     "removal_sequence",
     "ridge_analysis",
+    "stop_when",
     "variance_inflation",
 ]

@@ -13,6 +13,7 @@ from ._conditioning import Conditioning, condition_diagnostics
 from ._dependencies import Dependency, DependencyReport, Spectrum, find_dependencies
 from ._errors import OptionError, Problem
 from ._inflation import TermInflation, VariableInflation, generalized_inflation, variance_inflation
+from ._interrupt import checkpoint
 from ._notices import CAUTIONS, Notice, notice
 from ._remedies import Comparison, compare_remedies
 from ._removal import Removal, removal_sequence
@@ -287,10 +288,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             )
         )
 
+    checkpoint()
     conditioning = None
     if options.wants("conditioning"):
         conditioning = _conditioning(summary, options, matrix, spectrum, notes)
 
+    checkpoint()
     tests = None
     if options.wants("tests"):
         tests = collinearity_tests(
@@ -305,6 +308,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
                 )
             )
 
+    checkpoint()
     removal = ridge = components = comparison = None
     wants_comparison = options.wants("comparison")
     if options.wants("removal") or wants_comparison:
@@ -317,6 +321,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             dependencies=deps,
             r_xy=r_xy,
         )
+    checkpoint()
     sds = summary.sds if options.intercept else None
     if options.wants("ridge") or wants_comparison:
         ridge = ridge_analysis(
@@ -333,6 +338,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             intercept=options.intercept,
             spectrum=spectrum,
         )
+    checkpoint()
     if options.wants("components") or wants_comparison:
         components = principal_components(
             matrix,
@@ -348,6 +354,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             intercept=options.intercept,
             spectrum=spectrum,
         )
+    checkpoint()
     if wants_comparison:
         comparison = compare_remedies(
             matrix,

@@ -16,6 +16,7 @@ import scipy.linalg
 
 from ._dependencies import NULL_RTOL, DependencyReport, Spectrum, find_dependencies
 from ._errors import InputError, MatrixError, OptionError, Problem
+from ._interrupt import checkpoint
 from ._linalg import inverse_spd, logdet_spd
 
 #: Inflations within this relative distance of the largest count as tied, so that values equal
@@ -802,6 +803,7 @@ def _sequence(
     while np.count_nonzero(active) > 1:
         # A lone predictor (or term) has inflation 1 by definition; with a threshold just
         # above 1 rounding could otherwise drop it and leave nothing to assess.
+        checkpoint()
         eligible = np.where(active & unprotected, infl, -np.inf)
         top = float(eligible.max())
         if not top > threshold:

@@ -8,6 +8,8 @@ import numpy as np
 
 from knotwork.core._dependencies import NULL_RTOL
 
+from ._interrupt import checkpoint
+
 
 @dataclass(frozen=True, slots=True)
 class Repair:
@@ -155,6 +157,7 @@ def nearest_correlation(
     converged = False
     iterations = 0
     while iterations < max_iterations:
+        checkpoint()
         iterations += 1
         x_old, y_old = x, y
         r = y - correction

@@ -22,6 +22,7 @@ from ._errors import (
     TooFewDataError,
 )
 from ._errors import pointer_escape as esc
+from ._interrupt import checkpoint
 from ._notices import Notice, notice
 
 #: Row blocks are centred and multiplied this many bytes at a time: large enough for BLAS to
@@ -345,6 +346,7 @@ def _comoments(
     block = np.empty((min(step, n), q + 1), order="F")
     block[:, q] = 1.0
     for start in range(0, n, step):
+        checkpoint()
         stop = min(start + step, n)
         b = block[: stop - start]
         for j, c in enumerate(columns):
