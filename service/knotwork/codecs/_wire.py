@@ -12,7 +12,7 @@ column by column, so an error names its column (msgspec reports dictionary value
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Annotated, Literal, get_args
 
 import msgspec
 from msgspec import Meta, Raw, Struct
@@ -32,18 +32,6 @@ __all__ = [
     "TableInput",
 ]
 
-#: The parts of an assessment a client may ask for (all of them by default).
-SECTIONS = (
-    "variables",
-    "terms",
-    "conditioning",
-    "tests",
-    "dependencies",
-    "removal",
-    "ridge",
-    "components",
-    "comparison",
-)
 
 Name = Annotated[
     str,
@@ -68,6 +56,10 @@ Section = Literal[
     "components",
     "comparison",
 ]
+
+#: The parts of an assessment a client may ask for (all of them by default); a test checks
+#: that they are the core's sections.
+SECTIONS: tuple[str, ...] = get_args(Section)
 
 _NUMBER_OR_NULL = {"anyOf": [{"type": "number"}, {"type": "null"}]}
 NumericColumn = Annotated[
