@@ -20,8 +20,9 @@ install: $(STAMP)
 run: install
 	$(BIN)/python -m knotwork --host $(HOST) --port $(PORT)
 
+# In process by default; `make demo URL=http://127.0.0.1:8000` posts to a running service.
 demo: install
-	$(BIN)/python -m knotwork.demo
+	$(BIN)/python -m knotwork.demo $(if $(URL),--url $(URL))
 
 lint: install
 	$(BIN)/ruff check .

@@ -130,15 +130,63 @@ def render(a: Assessment) -> str:
     return "\n".join(lines)
 
 
+def request_body(frame: pd.DataFrame, threshold: float) -> dict[str, object]:
+    """The demo table as a JSON assessment request (``kind: table``)."""
+    numeric = frame.select_dtypes("number")
+    return {
+        "input": {
+            "kind": "table",
+            "columns": {name: numeric[name].tolist() for name in numeric.columns},
+            "categorical": {"region": frame["region"].tolist()},
+            "response": "weekly_takings",
+        },
+        "options": {"threshold": threshold},
+    }
+
+
+def _post(url: str, body: dict[str, object], token: str | None) -> object:
+    """POST the body to a running service and decode the answer into attribute records."""
+    import json
+    import urllib.error
+    import urllib.request
+    from types import SimpleNamespace
+
+    headers = {"Content-Type": "application/json"}
+    if token:
+        headers["Authorization"] = f"Bearer {token}"
+    req = urllib.request.Request(
+        url.rstrip("/") + "/v1/assess", data=json.dumps(body).encode(), headers=headers
+    )
+    try:
+        with urllib.request.urlopen(req, timeout=60) as answer:
+            text = answer.read()
+    except urllib.error.HTTPError as err:
+        raise SystemExit(f"the service answered {err.code}: {err.read().decode()}") from None
+    return json.loads(text, object_hook=lambda d: SimpleNamespace(**d))
+
+
 def main(argv: list[str] | None = None) -> int:
+    import os
+
     from knotwork.core import Options, assess, from_frame
 
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rows", type=int, default=240, help="centre-weeks to generate")
     parser.add_argument("--seed", type=int, default=7, help="random seed")
     parser.add_argument("--threshold", type=float, default=5.0, help="VIF threshold")
+    parser.add_argument(
+        "--url",
+        help="post the data to a running service (e.g. http://127.0.0.1:8000) instead of "
+        "computing in process; a token is read from KNOTWORK_TOKEN",
+    )
     args = parser.parse_args(argv)
     frame = garden_centres(args.rows, args.seed)
+    if args.url:
+        result = _post(
+            args.url, request_body(frame, args.threshold), os.environ.get("KNOTWORK_TOKEN")
+        )
+        print(render(result))  # type: ignore[arg-type]
+        return 0
     summary = from_frame(frame, response="weekly_takings")
     print(render(assess(summary, Options(threshold=args.threshold))))
     return 0
