@@ -56,12 +56,35 @@ class SettingsError(ValueError):
         super().__init__("invalid settings:\n  " + "\n  ".join(self.problems))
 
 
-def usable_cores() -> int:
-    """CPU cores this process may run on (its affinity mask, else the machine's count)."""
+def _cgroup_cpu_limit(path: str = "/sys/fs/cgroup/cpu.max") -> float | None:
+    """The CPU quota of this process's cgroup (v2) in cores, or None when there is none.
+
+    In a container with a CPU limit (``resources.limits.cpu`` in Kubernetes) the affinity mask
+    still shows every core of the node; the quota is what the process may really use.
+    """
     try:
-        return max(1, len(os.sched_getaffinity(0)))
+        with open(path, encoding="ascii") as f:
+            quota, period = f.read().split()[:2]
+    except (OSError, ValueError):
+        return None
+    if quota == "max":
+        return None
+    try:
+        return float(quota) / float(period)
+    except (ValueError, ZeroDivisionError):
+        return None
+
+
+def usable_cores() -> int:
+    """CPU cores this process may run on: its affinity mask, capped by a cgroup CPU quota."""
+    try:
+        cores = max(1, len(os.sched_getaffinity(0)))
     except (AttributeError, OSError):  # pragma: no cover - platforms without affinity
-        return max(1, os.cpu_count() or 1)
+        cores = max(1, os.cpu_count() or 1)
+    limit = _cgroup_cpu_limit()
+    if limit is not None:
+        cores = max(1, min(cores, int(limit + 0.5)))
+    return cores
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

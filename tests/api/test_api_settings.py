@@ -130,3 +130,16 @@ def test_a_file_without_tokens_is_an_error(tmp_path: Path) -> None:
     tokens.write_text("# nothing yet\n")
     with pytest.raises(SettingsError, match="holds no token"):
         Settings.from_env({"KNOTWORK_TOKENS_FILE": str(tokens)})
+
+
+def test_cgroup_cpu_quota_caps_the_usable_cores(tmp_path) -> None:
+    # cgroup v2 cpu.max: "<quota> <period>" in microseconds, or "max <period>" for no limit.
+    from knotwork.settings import _cgroup_cpu_limit
+
+    limited = tmp_path / "cpu.max"
+    limited.write_text("150000 100000\n")
+    assert _cgroup_cpu_limit(str(limited)) == 1.5
+    unlimited = tmp_path / "open.max"
+    unlimited.write_text("max 100000\n")
+    assert _cgroup_cpu_limit(str(unlimited)) is None
+    assert _cgroup_cpu_limit(str(tmp_path / "missing")) is None
