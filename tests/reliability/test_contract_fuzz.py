@@ -96,9 +96,7 @@ def _binary_bodies() -> dict[str, list[bytes]]:
 
 
 for _media, _bodies in _binary_bodies().items():
-    schemathesis.openapi.media_type(
-        _media, st.sampled_from(_bodies) | st.binary(max_size=512)
-    )
+    schemathesis.openapi.media_type(_media, st.sampled_from(_bodies) | st.binary(max_size=512))
 
 
 def _view(json_bodies: bool) -> dict:
@@ -137,33 +135,8 @@ class _Bearer:
         case.headers = {**(case.headers or {}), "Authorization": f"Bearer {data}"}
 
 
-def _known_bug(case: schemathesis.Case) -> bool:
-    # A threshold a hair above 1 makes the removal sequence drop every predictor and fail
-    # (test_threshold_just_above_one_is_answered, xfail until the core is fixed). Remove this
-    # filter when that test passes.
-    body = case.body if isinstance(case.body, dict) else {}
-    items = body.get("items") if isinstance(body.get("items"), list) else [body]
-    thresholds = [(case.query or {}).get("threshold")]
-    for item in items:
-        options = item.get("options") if isinstance(item, dict) else None
-        thresholds.append(options.get("threshold") if isinstance(options, dict) else None)
-    for threshold in thresholds:
-        try:
-            value = float(threshold)  # type: ignore[arg-type]
-        except (TypeError, ValueError):
-            continue
-        if 1 < value < 1 + 1e-6:
-            return True
-    return False
-
-
-def filter_case(context: object, case: schemathesis.Case) -> bool:
-    return not _known_bug(case)
-
-
 for _schema in (json_schema, binary_schema):
     _schema.auth()(_Bearer)
-    _schema.hook(filter_case)
 
 
 def problem_documents(ctx: object, response: schemathesis.Response, case: schemathesis.Case):
