@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Collection
 from dataclasses import dataclass, field
+from typing import TypedDict
 
 import numpy as np
 
@@ -38,6 +39,19 @@ COMPONENT_RULES = ("condition_index", "cumulative")
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
 _LARGE_N = 10_000
+
+
+class _FitArgs(TypedDict):
+    """Keyword arguments shared by the remedies that fit the response."""
+
+    n: float
+    r_xy: np.ndarray | None
+    sds: np.ndarray | None
+    response_sd: float | None
+    means: np.ndarray | None
+    response_mean: float | None
+    intercept: bool
+    spectrum: Spectrum
 
 
 @dataclass(frozen=True, slots=True)
@@ -322,37 +336,26 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             r_xy=r_xy,
         )
     checkpoint()
-    sds = summary.sds if options.intercept else None
+    # What both remedies need to state coefficients in original units (centred models only).
+    centred = options.intercept
+    fit: _FitArgs = {
+        "n": summary.n,
+        "r_xy": r_xy,
+        "sds": summary.sds if centred else None,
+        "response_sd": summary.response_sd if centred else None,
+        "means": summary.predictor_means if centred else None,
+        "response_mean": summary.response_mean if centred else None,
+        "intercept": options.intercept,
+        "spectrum": spectrum,
+    }
     if options.wants("ridge") or wants_comparison:
         ridge = ridge_analysis(
-            matrix,
-            names,
-            n=summary.n,
-            threshold=options.threshold,
-            grid=options.ridge_grid,
-            r_xy=r_xy,
-            sds=sds,
-            response_sd=summary.response_sd if options.intercept else None,
-            means=summary.predictor_means if options.intercept else None,
-            response_mean=summary.response_mean if options.intercept else None,
-            intercept=options.intercept,
-            spectrum=spectrum,
+            matrix, names, threshold=options.threshold, grid=options.ridge_grid, **fit
         )
     checkpoint()
     if options.wants("components") or wants_comparison:
         components = principal_components(
-            matrix,
-            names,
-            n=summary.n,
-            rule=options.components_rule,
-            limit=options.components_limit,
-            r_xy=r_xy,
-            sds=sds,
-            response_sd=summary.response_sd if options.intercept else None,
-            means=summary.predictor_means if options.intercept else None,
-            response_mean=summary.response_mean if options.intercept else None,
-            intercept=options.intercept,
-            spectrum=spectrum,
+            matrix, names, rule=options.components_rule, limit=options.components_limit, **fit
         )
     checkpoint()
     if wants_comparison:
