@@ -75,6 +75,17 @@ def _status_kib(pid: int, key: str) -> int:
     return 0
 
 
+def reset_peak(pid: int) -> None:
+    """Reset the resident high-water mark of ``pid`` and its descendants to their current
+    resident size (writing 5 to /proc/<pid>/clear_refs, Linux 4.0 and later)."""
+    for p in process_tree(pid):
+        try:
+            with open(f"/proc/{p}/clear_refs", "w", encoding="ascii") as fh:
+                fh.write("5")
+        except OSError:
+            pass
+
+
 def peak_memory_kib(pid: int) -> int:
     """Sum of the resident high-water marks (VmHWM) of ``pid`` and its live descendants."""
     return sum(_status_kib(p, "VmHWM") for p in process_tree(pid))
@@ -365,7 +376,12 @@ def raw_exchange(
     received = b""
     closed = False
     with socket.create_connection((HOST, port), timeout=timeout) as sock:
-        sock.sendall(head)
+        try:
+            sock.sendall(head)
+        except OSError:
+            # The service stopped reading (and may have answered): read what it said.
+            closed = True
+            chunks = ()
         for chunk in chunks:
             if time.monotonic() > deadline:
                 break

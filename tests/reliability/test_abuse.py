@@ -1,0 +1,411 @@
+"""Abuse: inputs built to exhaust the service, each met by a limit with a clear answer.
+
+One server with small limits (below) is started for the module. Each case resets the server's
+resident high-water mark (``/proc/<pid>/clear_refs``), sends its request, and checks:
+
+- the answer: the status and problem type of the limit that applies, or, for what an HTTP
+  server refuses before the application sees it, a refusal or a closed connection;
+- the time: an upper bound with generous slack (the machine is shared), never a lower one;
+- the memory: the server's peak resident size grew by at most :data:`BASE_GROWTH` plus twice
+  the bytes sent (a request may hold its body and one parsed copy of it, no more);
+- the service still answers a normal request afterwards.
+"""
+
+from __future__ import annotations
+
+import gzip
+import io
+import json
+import time
+import zlib
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+import httpx
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+from e2e_support import Server, serve
+from rel_support import (
+    JSON,
+    RawAnswer,
+    correlation_body,
+    peak_memory_kib,
+    raw_exchange,
+    reset_peak,
+    resident_kib,
+)
+
+MAX_BODY = 16 * 1024 * 1024
+LIMITS = {
+    "KNOTWORK_MAX_BODY_BYTES": str(MAX_BODY),
+    "KNOTWORK_MAX_CELLS": "200000",
+    "KNOTWORK_MAX_COLUMNS": "200",
+    "KNOTWORK_MAX_BATCH_ITEMS": "20",
+    "KNOTWORK_REQUEST_TIMEOUT_S": "2",
+    "KNOTWORK_CONCURRENCY": "2",
+    "KNOTWORK_QUEUE": "4",
+}
+#: Growth of the peak resident size any one request may cause beyond twice its size.
+BASE_GROWTH = 48 * 1024 * 1024
+PROBLEM = "https://knotwork.example/problems/"
+ARROW_STREAM = "application/vnd.apache.arrow.stream"
+PARQUET = "application/vnd.apache.parquet"
+
+
+@pytest.fixture(scope="module")
+def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
+    with serve(tmp_path_factory.mktemp("abuse"), LIMITS) as running:
+        yield running
+
+
+def _port(server: Server) -> int:
+    return int(server.url.rsplit(":", 1)[1])
+
+
+@dataclass
+class Measured:
+    seconds: float
+    growth: int  # bytes
+
+    def within(self, sent: int) -> None:
+        bound = BASE_GROWTH + 2 * sent
+        assert self.growth <= bound, (
+            f"peak memory grew by {self.growth / 2**20:.0f} MiB for {sent / 2**20:.1f} MiB "
+            f"sent; the bound is {bound / 2**20:.0f} MiB"
+        )
+
+
+def measure(server: Server, action: Callable[[], object]) -> tuple[object, Measured]:
+    pid = server.process.pid
+    reset_peak(pid)
+    before = resident_kib(pid)
+    started = time.monotonic()
+    result = action()
+    took = time.monotonic() - started
+    growth = max(0, peak_memory_kib(pid) - before) * 1024
+    return result, Measured(took, growth)
+
+
+def still_serves(server: Server) -> None:
+    body = correlation_body(4, 30, seed=1, sections=["variables"])
+    response = httpx.post(server.url + "/v1/assess", json=body, timeout=30)
+    assert response.status_code == 200, response.text
+
+
+def problem_of(answer: RawAnswer | httpx.Response) -> dict:
+    if isinstance(answer, RawAnswer):
+        assert (answer.header("content-type") or "").startswith("application/problem+json")
+        return json.loads(answer.body)
+    assert answer.headers["content-type"].startswith("application/problem+json")
+    return answer.json()
+
+
+# --- bodies too large, too slow ------------------------------------------------------------
+
+
+def test_a_huge_content_length_is_refused_before_reading(server: Server) -> None:
+    head = (
+        b"POST /v1/assess HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+        b"Content-Length: 10000000000\r\n\r\n"
+    )
+    # Only the head is sent: the answer comes without waiting for a byte of the body.
+    answer, cost = measure(server, lambda: raw_exchange(_port(server), head, timeout=10))
+    assert answer.status == 413
+    assert problem_of(answer)["type"] == PROBLEM + "body-too-large"
+    assert cost.seconds < 5
+    cost.within(len(head))
+    still_serves(server)
+
+
+def test_a_chunked_body_is_cut_off_at_the_limit(server: Server) -> None:
+    head = (
+        b"POST /v1/assess HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+        b"Transfer-Encoding: chunked\r\n\r\n"
+    )
+    piece = b"[" * 65536
+    chunk = b"%x\r\n%s\r\n" % (len(piece), piece)
+    count = 2 * MAX_BODY // len(piece)  # twice the limit, if nobody stopped us
+    answer, cost = measure(
+        server, lambda: raw_exchange(_port(server), head, [chunk] * count, timeout=30)
+    )
+    assert answer.status == 413
+    assert problem_of(answer)["type"] == PROBLEM + "body-too-large"
+    cost.within(MAX_BODY)
+    still_serves(server)
+
+
+def test_a_trickled_body_is_cut_off_by_the_read_time_limit(server: Server) -> None:
+    head = (
+        b"POST /v1/assess HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\n"
+        b"Content-Length: 100000\r\n\r\n"
+    )
+    # Ten bytes every 0.1 s keeps the connection busy for 1000 s if nothing cuts it off;
+    # the read limit (the request time limit, 2 s) counts from the start, not between bytes.
+    answer, cost = measure(
+        server,
+        lambda: raw_exchange(_port(server), head, [b'{"input":0'] * 10000, pause=0.1, timeout=30),
+    )
+    assert answer.status == 408
+    doc = problem_of(answer)
+    assert doc["type"] == PROBLEM + "body-timeout"
+    assert "2 s" in doc["detail"]
+    assert (answer.header("connection") or "").lower() == "close"
+    assert cost.seconds < 2 + 10
+    cost.within(100_000)
+    still_serves(server)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "service bug: uvicorn (httptools) sets no time limit on a request head, so a client "
+        "that trickles header lines holds its connection open for as long as it likes"
+    ),
+)
+def test_a_trickled_request_head_is_cut_off(server: Server) -> None:
+    head = b"GET /healthz HTTP/1.1\r\nHost: x\r\n"
+    lines = [b"X-Slow-%d: v\r\n" % i for i in range(1000)]
+    # The bound: the request time limit (2 s) plus slack; the trickle would last 200 s.
+    answer = raw_exchange(_port(server), head, lines, pause=0.2, timeout=8)
+    assert answer.closed or answer.status is not None, "still open after 8 s"
+
+
+# --- compressed bodies ----------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("encoding", ["gzip", "deflate", "br"])
+def test_compressed_requests_are_not_inflated(server: Server, encoding: str) -> None:
+    # 100 MB of spaces squeezed into about 100 KB: a service that inflated request bodies
+    # would hold 100 MB; this one does not honour Content-Encoding and reads the bytes as
+    # they are, which are not JSON.
+    raw = b" " * 100_000_000
+    bomb = gzip.compress(raw, 9) if encoding == "gzip" else zlib.compress(raw, 9)
+    headers = {"Content-Type": JSON, "Content-Encoding": encoding}
+    response, cost = measure(
+        server,
+        lambda: httpx.post(server.url + "/v1/assess", content=bomb, headers=headers, timeout=30),
+    )
+    assert response.status_code in (400, 415), response.text
+    assert problem_of(response)["type"] in (
+        PROBLEM + "malformed-body",
+        PROBLEM + "unsupported-media-type",
+    )
+    cost.within(len(bomb))
+    still_serves(server)
+
+
+def _zeros_arrow_zstd(rows: int, batch: int = 1_000_000) -> bytes:
+    sink = io.BytesIO()
+    schema = pa.schema([("a", pa.float64()), ("b", pa.float64())])
+    options = pa.ipc.IpcWriteOptions(compression="zstd")
+    part = pa.table({"a": np.zeros(batch), "b": np.ones(batch)}, schema=schema)
+    with pa.ipc.new_stream(sink, schema, options=options) as writer:
+        for _ in range(rows // batch):
+            writer.write_table(part)
+    return sink.getvalue()
+
+
+def _zeros_parquet(rows: int, batch: int = 1_000_000) -> bytes:
+    sink = io.BytesIO()
+    part = pa.table({"a": np.zeros(batch), "b": np.ones(batch)})
+    with pq.ParquetWriter(sink, part.schema, compression="zstd") as writer:
+        for _ in range(rows // batch):
+            writer.write_table(part)
+    return sink.getvalue()
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "service bug: an Arrow IPC body with compressed buffers, or Parquet, is decoded whole "
+        "before the cell limit is checked (codecs/_arrow.py read_table, then table_data): a "
+        "small body inflates to hundreds of MB"
+    ),
+)
+@pytest.mark.parametrize("media", [ARROW_STREAM, PARQUET])
+def test_compressed_tables_are_refused_before_inflating(server: Server, media: str) -> None:
+    rows = 20_000_000  # 2 columns: 320 MB once decoded, against a limit of 200,000 numbers
+    body = _zeros_arrow_zstd(rows) if media == ARROW_STREAM else _zeros_parquet(rows)
+    assert len(body) < 1_000_000
+    headers = {"Content-Type": media}
+    response, cost = measure(
+        server,
+        lambda: httpx.post(server.url + "/v1/assess", content=body, headers=headers, timeout=60),
+    )
+    assert response.status_code == 413, response.text
+    assert problem_of(response)["type"] == PROBLEM + "too-many-cells"
+    try:
+        cost.within(len(body))
+    finally:
+        still_serves(server)
+
+
+# --- shapes built to hurt -------------------------------------------------------------------
+
+_DEPTH = 100_000
+
+
+def _nested(prefix: bytes, suffix: bytes) -> bytes:
+    return prefix + b"[" * _DEPTH + b"]" * _DEPTH + suffix
+
+
+_NESTING = {
+    "input": ("/v1/assess", _nested(b'{"input":', b"}")),
+    "options": ("/v1/assess", _nested(b'{"input":{"kind":"table","columns":{}},"options":', b"}")),
+    "column": (
+        "/v1/assess",
+        _nested(b'{"input":{"kind":"table","columns":{"a":', b"}}}"),
+    ),
+    "terms": (
+        "/v1/assess",
+        _nested(
+            b'{"input":{"kind":"correlation","names":["a"],"matrix":[[1]],"n":5,"terms":{"t":',
+            b"}}}",
+        ),
+    ),
+    "batch item": ("/v1/assess/batch", _nested(b'{"items":[', b"]}")),
+}
+_NESTING_BUG = pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "service bug: deep nesting inside a value decoded later as raw JSON (a column, a term, "
+        "a batch item) raises RecursionError in msgspec, which codecs/_json.py _parse does not "
+        "catch: 500"
+    ),
+)
+
+
+@pytest.mark.parametrize(
+    "where",
+    [
+        pytest.param(name, marks=_NESTING_BUG if name in ("column", "terms", "batch item") else ())
+        for name in _NESTING
+    ],
+)
+def test_deeply_nested_json_is_a_client_error(server: Server, where: str) -> None:
+    path, body = _NESTING[where]
+    response, cost = measure(
+        server,
+        lambda: httpx.post(
+            server.url + path, content=body, headers={"Content-Type": JSON}, timeout=30
+        ),
+    )
+    assert response.status_code == 400, response.text
+    assert problem_of(response)["type"] in (PROBLEM + "malformed-body", PROBLEM + "invalid-request")
+    assert cost.seconds < 10
+    cost.within(len(body))
+    still_serves(server)
+
+
+@pytest.mark.parametrize("kind", ["table", "correlation", "moments"])
+def test_huge_p_with_tiny_n_is_refused_at_once(server: Server, kind: str) -> None:
+    p = 200  # the column limit of this server
+    names = [f"v{j}" for j in range(p)]
+    if kind == "table":
+        doc = {
+            "kind": "table",
+            "columns": {n: [1.0 * j, 2.0, 3.5 * j] for j, n in enumerate(names)},
+        }
+    elif kind == "correlation":
+        doc = {"kind": "correlation", "names": names, "matrix": np.eye(p).tolist(), "n": 3}
+    else:
+        doc = {
+            "kind": "moments",
+            "names": names,
+            "n": 3,
+            "means": [0.0] * p,
+            "covariance": np.eye(p).tolist(),
+        }
+    body = json.dumps({"input": doc}).encode()
+    response, cost = measure(
+        server,
+        lambda: httpx.post(
+            server.url + "/v1/assess", content=body, headers={"Content-Type": JSON}, timeout=30
+        ),
+    )
+    assert response.status_code == 422, response.text
+    doc_ = problem_of(response)
+    assert doc_["type"] == PROBLEM + "too-few-data"
+    assert "200" in doc_["detail"] and "3" in doc_["detail"]
+    assert cost.seconds < 10
+    cost.within(len(body))
+    # One more column than the limit is refused before any numerics.
+    wider = {"input": {"kind": "table", "columns": {f"w{j}": [1.0, 2.0] for j in range(p + 1)}}}
+    response = httpx.post(server.url + "/v1/assess", json=wider, timeout=30)
+    assert response.status_code == 413
+    assert problem_of(response)["type"] == PROBLEM + "too-many-columns"
+
+
+def test_a_few_more_items_than_allowed_are_refused(server: Server) -> None:
+    items = [correlation_body(3, 20, seed=i, sections=["variables"]) for i in range(21)]
+    response = httpx.post(server.url + "/v1/assess/batch", json={"items": items}, timeout=30)
+    assert response.status_code == 413
+    doc = problem_of(response)
+    assert doc["type"] == PROBLEM + "too-many-items"
+    assert doc["errors"][0]["pointer"] == "/items"
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "service bug: every item of a batch is materialized (one msgspec.Raw each, about 57 "
+        "bytes) before the item limit is checked (codecs/_json.py decode_batch): 8 million "
+        "2-byte items in 16 MB take about 450 MB"
+    ),
+)
+def test_millions_of_tiny_batch_items_are_refused_in_bounded_memory(server: Server) -> None:
+    count = MAX_BODY // 2 - 16
+    body = b'{"items":[' + b",".join([b"0"] * count) + b"]}"
+    assert len(body) <= MAX_BODY
+    response, cost = measure(
+        server,
+        lambda: httpx.post(
+            server.url + "/v1/assess/batch",
+            content=body,
+            headers={"Content-Type": JSON},
+            timeout=60,
+        ),
+    )
+    assert response.status_code in (400, 413), response.text
+    assert cost.seconds < 30
+    try:
+        cost.within(len(body))
+    finally:
+        still_serves(server)
+
+
+# --- header floods --------------------------------------------------------------------------
+
+_HEADER_BUG = pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "service bug: uvicorn with httptools (python -m knotwork's default) puts no limit on "
+        "the size of a request head; memory grows with it (about 9x the head's size)"
+    ),
+)
+
+
+@pytest.mark.parametrize(
+    "flood",
+    [
+        pytest.param("a million header lines", marks=_HEADER_BUG),
+        pytest.param("one 16 MB header", marks=_HEADER_BUG),
+        "a 16 MB request line",
+    ],
+)
+def test_header_floods_are_refused_in_bounded_memory(server: Server, flood: str) -> None:
+    if flood == "a million header lines":
+        extra = b"".join(b"X-F%d: v\r\n" % i for i in range(1_000_000))
+        head = b"GET /healthz HTTP/1.1\r\nHost: x\r\n" + extra + b"\r\n"
+    elif flood == "one 16 MB header":
+        head = b"GET /healthz HTTP/1.1\r\nHost: x\r\nX-Big: " + b"v" * MAX_BODY + b"\r\n\r\n"
+    else:
+        head = b"GET /healthz?" + b"q" * MAX_BODY + b" HTTP/1.1\r\nHost: x\r\n\r\n"
+    answer, cost = measure(server, lambda: raw_exchange(_port(server), head, timeout=30))
+    # Refused: an error status (400 or 431) or the connection closed; never served.
+    assert answer.status != 200, answer.head[:200]
+    assert answer.status is None or answer.status in (400, 413, 414, 431)
+    cost.within(64 * 1024)  # a head of 64 KiB is as much as a server needs to hold
+    still_serves(server)
