@@ -14,7 +14,8 @@ loopback to ``python -m knotwork`` started here with a bearer token. Every answe
 
 The count is bounded (``KNOTWORK_FUZZ_EXAMPLES`` per operation, 25 by default, derandomized so
 that ``make test`` is repeatable); ``bench/bench_fuzz.py`` runs the same checks with many more
-examples and reports the tally that ``KNOTWORK_FUZZ_REPORT`` asks this module to write.
+examples from a seed (``KNOTWORK_FUZZ_SEED``) and reports the tally that
+``KNOTWORK_FUZZ_REPORT`` asks this module to write.
 Arrow and Parquet bodies are binary: they are drawn from a few hand-made tables, their
 truncations and random bytes rather than generated from a schema.
 """
@@ -50,6 +51,8 @@ from schemathesis.specs.openapi.checks import (  # noqa: E402
 TOKEN = "fuzz-token-0123456789abcdef"
 EXAMPLES = int(os.environ.get("KNOTWORK_FUZZ_EXAMPLES", "25"))
 REPORT = os.environ.get("KNOTWORK_FUZZ_REPORT")
+#: Set by bench/bench_fuzz.py with pytest's --hypothesis-seed: random, reproducible draws.
+DERANDOMIZE = "KNOTWORK_FUZZ_SEED" not in os.environ
 PROBLEM_BASE = "https://knotwork.example/problems/"
 ARROW_STREAM = "application/vnd.apache.arrow.stream"
 ARROW_FILE = "application/vnd.apache.arrow.file"
@@ -175,7 +178,7 @@ def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
 _SETTINGS = settings(
     max_examples=EXAMPLES,
     deadline=None,
-    derandomize=True,
+    derandomize=DERANDOMIZE,
     suppress_health_check=list(HealthCheck),
     database=None,
 )

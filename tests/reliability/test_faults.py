@@ -18,7 +18,6 @@ Every server is started here on a free 127.0.0.1 port; every loop is bounded in 
 from __future__ import annotations
 
 import asyncio
-import csv
 import json
 import signal
 import threading
@@ -33,82 +32,18 @@ from numpy.testing import assert_allclose
 from rel_support import (
     FaultPlan,
     FaultProxy,
+    check_reports,
     correlation_body,
-    ferry_model,
-    reference_vifs,
+    run_screen,
     table_body,
     time_limit,
+    write_models,
 )
 
 from knotwork_client import AsyncClient, Correlation, Retry
-from knotwork_client._cli import main as screen
 
 GRACEFUL = (0, -signal.SIGTERM)
 AUTH_TOKEN = "faults-token-0123456789abcdef"
-
-
-def write_models(folder: Path, count: int) -> dict[str, dict[str, list[float]]]:
-    """Write ``count`` generated models as CSV files and a manifest (every third model sends
-    only its local summary); return the columns of each model by name."""
-    folder.mkdir(parents=True, exist_ok=True)
-    models: dict[str, dict[str, list[float]]] = {}
-    entries = []
-    for index in range(count):
-        name = f"model{index:03d}"
-        columns = ferry_model(index)
-        with (folder / f"{name}.csv").open("w", newline="", encoding="utf-8") as fh:
-            writer = csv.writer(fh)
-            writer.writerow(list(columns))
-            writer.writerows(zip(*columns.values(), strict=True))
-        models[name] = columns
-        entries.append({"path": f"{name}.csv", "summary_only": index % 3 == 0})
-    (folder / "manifest.json").write_text(json.dumps({"models": entries}), encoding="utf-8")
-    return models
-
-
-def run_screen(folder: Path, url: str, out: Path, *, parallel: int = 4) -> int:
-    return screen(
-        [
-            str(folder / "manifest.json"),
-            "--url",
-            url,
-            "--token-file",
-            str(folder / "token"),
-            "--out",
-            str(out),
-            "--parallel",
-            str(parallel),
-            "--attempts",
-            "5",
-            "--timeout",
-            "30",
-            "--sections",
-            "variables,removal",
-            "--progress",
-            "none",
-        ]
-    )
-
-
-def check_reports(models: dict[str, dict[str, list[float]]], out: Path) -> dict[str, int]:
-    """Every model has exactly one report, about itself, with the right VIFs; returns counts."""
-    reports = sorted(p.stem for p in out.glob("*.json"))
-    assert reports == sorted(models), "a report is missing or extra"
-    with (out / "screen.csv").open(encoding="utf-8") as fh:
-        rows = list(csv.DictReader(fh))
-    assert sorted(r["model"] for r in rows) == sorted(models), "the table lost or doubled a row"
-    statuses = {"pass": 0, "fail": 0}
-    for name, columns in models.items():
-        report = json.loads((out / f"{name}.json").read_text(encoding="utf-8"))
-        assert report["model"] == name
-        assert report["status"] in statuses, report.get("error")
-        statuses[report["status"]] += 1
-        doc = report["assessment"]
-        assert [v["name"] for v in doc["variables"]] == list(columns), "another model's answer"
-        assert doc["n"] == len(next(iter(columns.values())))
-        # Source: statsmodels 0.15.0 variance_inflation_factor on the same rows with a constant.
-        assert_allclose([v["vif"] for v in doc["variables"]], reference_vifs(columns), rtol=1e-9)
-    return statuses
 
 
 @pytest.fixture(scope="module")
