@@ -148,6 +148,20 @@ def _assess_many(
     return BatchResponse(results=results)
 
 
+async def _admitted_body(
+    request: Request[Any, Any, Any], pool: WorkPool
+) -> tuple[bytearray, object]:
+    """Take a queue place (or 503 at once), then read the body; give the place back on failure."""
+    settings = request.app.state.settings
+    ticket = pool.admit()
+    try:
+        body = await read_body(request, settings.max_body_bytes, settings.request_timeout_s)
+    except BaseException:
+        pool.release(ticket)
+        raise
+    return body, ticket
+
+
 @post(
     "/v1/assess",
     operation_class=AssessOperation,
@@ -173,9 +187,11 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
     if media == JSON and query:
         reason = "a JSON body carries its options in the body; remove the query parameters"
         raise InvalidRequest(reason, [Fault("/query", reason)])
-    body = await read_body(request, state.settings.max_body_bytes, state.settings.request_timeout_s)
     pool: WorkPool = state.pool
-    result, queue_s, compute_s = await pool.run(_assess_one, body, media, query, state.limits)
+    body, ticket = await _admitted_body(request, pool)
+    result, queue_s, compute_s = await pool.run(
+        _assess_one, body, media, query, state.limits, ticket=ticket
+    )
     _record("/v1/assess", queue_s, compute_s, encoding=media)
     return result
 
@@ -201,14 +217,20 @@ async def assess_batch(request: Request[Any, Any, Any]) -> BatchResponse:
     if request.scope.get("query_string"):
         reason = "a batch carries its options in each item; remove the query parameters"
         raise InvalidRequest(reason, [Fault("/query", reason)])
-    body = await read_body(request, state.settings.max_body_bytes, state.settings.request_timeout_s)
     pool: WorkPool = state.pool
+    body, ticket = await _admitted_body(request, pool)
     timeout_s = pool.timeout_s
     deadline = time.monotonic() + timeout_s
     # The items stop starting at the deadline; the pool's own limit, a little later, only
     # catches an item that runs far past it.
     result, queue_s, compute_s = await pool.run(
-        _assess_many, body, state.limits, deadline, timeout_s, timeout_s=timeout_s * 1.5 + 1
+        _assess_many,
+        body,
+        state.limits,
+        deadline,
+        timeout_s,
+        timeout_s=timeout_s * 1.5 + 1,
+        ticket=ticket,
     )
     _record("/v1/assess/batch", queue_s, compute_s, items=len(result.results))
     return result

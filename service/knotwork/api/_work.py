@@ -85,10 +85,36 @@ class WorkPool:
             "input, ask for fewer sections, or a summary instead of rows",
         )
 
+    def admit(self) -> object:
+        """Take a queue place now, before the body is read, or answer 503 at once.
+
+        Taking it first bounds the memory of bodies in hand by the capacity (slots plus queue
+        places, each at most the body limit) instead of by the number of connections; a
+        client refused this way gets its 503 before sending the body, not after.
+        """
+        _, admitted = self._limiters()
+        ticket = object()
+        try:
+            admitted.acquire_on_behalf_of_nowait(ticket)
+        except anyio.WouldBlock:
+            raise self._saturated() from None
+        IN_FLIGHT.inc()
+        return ticket
+
+    def release(self, ticket: object) -> None:
+        """Give back a queue place taken by :meth:`admit` (when the body could not be read)."""
+        _, admitted = self._limiters()
+        admitted.release_on_behalf_of(ticket)
+        IN_FLIGHT.dec()
+
     async def run(
-        self, fn: Callable[..., T], *args: Any, timeout_s: float | None = None
+        self,
+        fn: Callable[..., T],
+        *args: Any,
+        timeout_s: float | None = None,
+        ticket: object | None = None,
     ) -> tuple[T, float, float]:
-        """Run ``fn(*args)`` in a worker thread.
+        """Run ``fn(*args)`` in a worker thread, on the queue place ``ticket`` (or a new one).
 
         Returns
         -------
@@ -101,14 +127,9 @@ class WorkPool:
             503 ``saturated`` (with Retry-After) when no queue place is free; 503
             ``time-limit`` when the work did not finish in time.
         """
-        running, admitted = self._limiters()
+        running, _ = self._limiters()
         limit = self.timeout_s if timeout_s is None else timeout_s
-        borrower = object()
-        try:
-            admitted.acquire_on_behalf_of_nowait(borrower)
-        except anyio.WouldBlock:
-            raise self._saturated() from None
-        IN_FLIGHT.inc()
+        borrower = self.admit() if ticket is None else ticket
         expired = threading.Event()
         submitted = time.perf_counter()
         spans = {"queue": 0.0, "compute": 0.0}
@@ -130,8 +151,7 @@ class WorkPool:
             try:
                 return await anyio.to_thread.run_sync(timed, limiter=running)
             finally:
-                admitted.release_on_behalf_of(borrower)
-                IN_FLIGHT.dec()
+                self.release(borrower)
 
         # The job is its own task, so a time-out here cannot cancel it: its thread keeps its
         # slot until it ends (at the core's next checkpoint), and the limiter stays true.
