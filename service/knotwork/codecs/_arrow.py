@@ -8,6 +8,8 @@ row, so an Arrow body and the equivalent JSON body give the same answer.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 import pyarrow as pa
 import pyarrow.ipc
@@ -29,13 +31,33 @@ _NAMES = {ARROW_STREAM: "an Arrow IPC stream", ARROW_FILE: "an Arrow IPC file", 
 Buffer = bytes | bytearray | memoryview
 
 
-def read_table(body: Buffer, media_type: str) -> pa.Table:
+def _cells_guard(limits: Limits | None, columns: int) -> Callable[[int], None]:
+    """A check called with the rows read so far: raises TooLarge past the cell limit."""
+
+    def check(rows: int) -> None:
+        if limits is not None and rows * max(columns, 1) > limits.max_cells:
+            reason = (
+                f"more than the limit of {limits.max_cells} numbers in the table; send a sample "
+                "of the rows, or a summary (correlation or moments) computed on your side"
+            )
+            raise TooLarge("too-many-cells", reason, [Fault("/columns", reason)])
+
+    return check
+
+
+def read_table(body: Buffer, media_type: str, limits: Limits | None = None) -> pa.Table:
     """Read the body as an Arrow IPC stream, an Arrow IPC file or Parquet, without copying.
+
+    With ``limits`` the cell limit is checked before the data are decoded where the format
+    says the size up front (Parquet's footer), and batch by batch otherwise, so a small
+    compressed body cannot inflate to far more than one batch past the limit.
 
     Raises
     ------
     MalformedBody
         When the bytes are empty, truncated or not of the announced format.
+    TooLarge
+        When the table has more cells than the limit.
     """
     what = _NAMES[media_type]
     if not body:
@@ -43,10 +65,30 @@ def read_table(body: Buffer, media_type: str) -> pa.Table:
     buffer = pa.py_buffer(body)
     try:
         if media_type == ARROW_STREAM:
-            return pyarrow.ipc.open_stream(buffer).read_all()
+            stream = pyarrow.ipc.open_stream(buffer)
+            check = _cells_guard(limits, len(stream.schema))
+            batches, rows = [], 0
+            for batch in stream:
+                rows += batch.num_rows
+                check(rows)
+                batches.append(batch)
+            return pa.Table.from_batches(batches, schema=stream.schema)
         if media_type == ARROW_FILE:
-            return pyarrow.ipc.open_file(buffer).read_all()
-        return pq.read_table(pa.BufferReader(buffer))
+            file = pyarrow.ipc.open_file(buffer)
+            check = _cells_guard(limits, len(file.schema))
+            batches, rows = [], 0
+            for i in range(file.num_record_batches):
+                batch = file.get_batch(i)
+                rows += batch.num_rows
+                check(rows)
+                batches.append(batch)
+            return pa.Table.from_batches(batches, schema=file.schema)
+        parquet = pq.ParquetFile(pa.BufferReader(buffer))
+        meta = parquet.metadata
+        _cells_guard(limits, meta.num_columns)(meta.num_rows)
+        return parquet.read()
+    except TooLarge:
+        raise
     except (pa.ArrowException, OSError, ValueError) as exc:
         # pyarrow's messages describe the bytes (offsets, lengths, magic numbers), never values.
         reason = f"the body is not {what}: {exc}"
@@ -149,6 +191,6 @@ def decode_table_body(
         MalformedBody, InvalidRequest (a query parameter), TooLarge or UnusableInput.
     """
     options, response, weights = options_from_query(query)
-    table = read_table(body, media_type)
+    table = read_table(body, media_type, limits)
     data = table_data(table, limits, response, weights)
     return Prepared(data=data, options=options, origin=Origin(query=True))
