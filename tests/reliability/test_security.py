@@ -235,7 +235,7 @@ def _bad_requests() -> list[tuple[str, dict, bytes]]:
         (assess + "?threshold=" + MARKER_STRING, as_arrow, sink.getvalue()[:-8]),
         # A batch with one bad item after a good one.
         (batch, as_json, doc({"items": [correlation_body(3, 20, 1), bad_item]})),
-        # Deep nesting inside a column (a server error before the fix: logs must stay clean).
+        # Deep nesting inside a column (a server error once: logs must stay clean).
         (assess, as_json, b'{"input":{"kind":"table","columns":{"c":' + nested + b"}}}"),
     ]  # fmt: skip
 
@@ -253,9 +253,9 @@ def test_no_request_data_in_answers_or_logs(tmp_path: Path) -> None:
                 assert value not in text, (path, text)
             assert "Traceback" not in text
     # Each bad request is a client error (the batch answers 200 with a problem for its bad
-    # item); the deep nesting is a 500 until the fix (test_abuse.py marks that one).
-    assert all(400 <= s < 500 for s in statuses[:-2]), statuses
-    assert statuses[-2] == 200 and statuses[-1] in (400, 500), statuses
+    # item).
+    assert all(400 <= s < 500 for s in statuses[:-2] + statuses[-1:]), statuses
+    assert statuses[-2] == 200, statuses
     logs = _all_text(server)
     assert logs.count('"route":') >= len(statuses)
     for marker in (*values, MARKER_NAME):
