@@ -130,7 +130,8 @@ def nearest_correlation(
     .. [1] Higham, N. J. (2002). Computing the nearest correlation matrix: a problem from
        finance. *IMA Journal of Numerical Analysis* 22(3), 329-343.
     .. [2] Boyle, J. P. and Dykstra, R. L. (1986). A method for finding projections onto the
-       intersection of convex sets in Hilbert spaces. *Lecture Notes in Statistics* 37, 28-47.
+       intersection of convex sets in Hilbert spaces. In *Advances in Order Restricted
+       Statistical Inference*, Springer, 28-47 (details from memory).
     """
     a = np.asarray(matrix, dtype=float)
     if a.ndim != 2 or a.shape[0] != a.shape[1]:
