@@ -21,13 +21,14 @@ memory (VmHWM of the process and its children, /proc) over the whole run against
 that follows from the limits:
 
     baseline + concurrency x (max_body + 34 x max_cells + 270 x max_columns^2)
-             + (connections - concurrency) x max_body
+             + queue x max_body + connections x 64 KiB
 
 (deploy/README.md, "Sizing": a JSON request costs its body plus about 34 bytes a number and
-270 p^2; every other connection may hold a body being read, since a body is read before the
-request waits for a slot or is refused). Exit status 1 if a 5xx other than 503, a wrong answer
-or a breach of the bound occurs. The client shares the 2 cores with the server: the figures
-are what one shared machine gives, not the service's ceiling.
+270 p^2; a body is read only once its request holds a slot or a queue place, so waiting
+requests hold at most their bodies, and a refused one holds only its head, which the server
+caps at 64 KiB). Exit status 1 if a 5xx other than 503, a wrong answer or a breach of the
+bound occurs. The client shares the 2 cores with the server: the figures are what one shared
+machine gives, not the service's ceiling.
 """
 
 from __future__ import annotations
@@ -61,6 +62,7 @@ CONCURRENCY, QUEUE = 2, 4
 MAX_BODY = 4 * 1024 * 1024
 MAX_CELLS = 250_000
 MAX_COLUMNS = 100
+HEAD_LIMIT = 64 * 1024  # the request-head limit of python -m knotwork (uvicorn, h11)
 ENV = {
     "KNOTWORK_CONCURRENCY": str(CONCURRENCY),
     "KNOTWORK_QUEUE": str(QUEUE),
@@ -205,7 +207,7 @@ def main() -> int:
 
     per_request = MAX_BODY + 34 * MAX_CELLS + 270 * MAX_COLUMNS**2
     connections = max(p.clients for p in phases)
-    bound = baseline + CONCURRENCY * per_request + (connections - CONCURRENCY) * MAX_BODY
+    bound = baseline + CONCURRENCY * per_request + QUEUE * MAX_BODY + connections * HEAD_LIMIT
 
     print(f"Load mix for {total:.0f} s against {CONCURRENCY} slots + {QUEUE} queue places")
     header = f"{'':34}" + "".join(f"{p.label:>22}" for p in phases)
