@@ -10,7 +10,8 @@
   taken) answers each of them completely and correctly, refuses or completes later ones (never
   half an answer) and exits gracefully.
 - A request beyond ``KNOTWORK_REQUEST_TIMEOUT_S`` gets a time-limit problem document in time,
-  and the service then answers again.
+  its computation stops soon after (it gives its slot back), and the next request, sent at
+  once to the only slot, succeeds within its own limit.
 
 Every server is started here on a free 127.0.0.1 port; every loop is bounded in count and time.
 """
