@@ -11,7 +11,7 @@ import pyarrow.parquet as pq
 import pytest
 
 from knotwork.codecs import ARROW_STREAM, PARQUET
-from knotwork.codecs._arrow import read_table
+from knotwork.codecs._arrow import _cells_guard, _prescan, read_table
 from knotwork.codecs._errors import TooLarge
 from knotwork.codecs._prepared import Limits
 
@@ -48,3 +48,23 @@ def test_within_the_limit_the_table_is_read_whole() -> None:
     with pa.ipc.new_stream(sink, table.schema) as writer:
         writer.write_table(table, max_chunksize=100)
     assert read_table(sink.getvalue(), ARROW_STREAM, LIMITS).num_rows == 1000
+
+
+@pytest.mark.parametrize("fmt", ["stream", "file"])
+def test_one_compressed_batch_is_refused_from_its_metadata(fmt: str) -> None:
+    from knotwork.codecs import ARROW_FILE
+
+    table = _zeros(2_000_000)
+    sink = io.BytesIO()
+    options = pa.ipc.IpcWriteOptions(compression="zstd")
+    opener = pa.ipc.new_stream if fmt == "stream" else pa.ipc.new_file
+    with opener(sink, table.schema, options=options) as writer:
+        writer.write_table(table, max_chunksize=2_000_000)  # one batch of 8 million zeros
+    body = sink.getvalue()
+    assert len(body) < 200_000
+    media = ARROW_STREAM if fmt == "stream" else ARROW_FILE
+    with pytest.raises(TooLarge):
+        read_table(body, media, LIMITS)
+    # The refusal comes from the declared lengths, before the batch is decoded.
+    with pytest.raises(TooLarge):
+        _prescan(pa.py_buffer(body), media, _cells_guard(LIMITS, 4))

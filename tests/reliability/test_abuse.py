@@ -230,14 +230,6 @@ def _zeros_parquet(rows: int, batch: int) -> bytes:
     return sink.getvalue()
 
 
-_ONE_BATCH_BUG = pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "service bug: the cell limit is checked after each Arrow IPC record batch is decoded "
-        "(codecs/_arrow.py read_table), so one compressed batch still inflates whole: 10 KB "
-        "of body became 160 MB"
-    ),
-)
 ROWS = 10_000_000  # 2 columns: 160 MB once decoded, against a limit of 200,000 numbers
 
 
@@ -245,8 +237,8 @@ ROWS = 10_000_000  # 2 columns: 160 MB once decoded, against a limit of 200,000 
     ("media", "batch"),
     [
         pytest.param(ARROW_STREAM, 1_000_000, id="arrow-stream-batches"),
-        pytest.param(ARROW_STREAM, ROWS, id="arrow-stream-one-batch", marks=_ONE_BATCH_BUG),
-        pytest.param(ARROW_FILE, ROWS, id="arrow-file-one-batch", marks=_ONE_BATCH_BUG),
+        pytest.param(ARROW_STREAM, ROWS, id="arrow-stream-one-batch"),
+        pytest.param(ARROW_FILE, ROWS, id="arrow-file-one-batch"),
         pytest.param(PARQUET, 1_000_000, id="parquet-row-groups"),
         pytest.param(PARQUET, ROWS, id="parquet-one-row-group"),
     ],

@@ -8,6 +8,7 @@ row, so an Arrow body and the equivalent JSON body give the same answer.
 
 from __future__ import annotations
 
+import struct
 from collections.abc import Callable
 
 import numpy as np
@@ -45,6 +46,55 @@ def _cells_guard(limits: Limits | None, columns: int) -> Callable[[int], None]:
     return check
 
 
+def _field(meta: bytes, table: int, index: int) -> int | None:
+    """Position of field ``index`` of a flatbuffer table, or None when it is absent."""
+    vtable = table - struct.unpack_from("<i", meta, table)[0]
+    size = struct.unpack_from("<H", meta, vtable)[0]
+    slot = 4 + 2 * index
+    if slot >= size:
+        return None
+    offset = struct.unpack_from("<H", meta, vtable + slot)[0]
+    return None if offset == 0 else table + offset
+
+
+def _declared_rows(message: pa.ipc.Message) -> int:
+    """Rows a record-batch message declares, read from its metadata before any decoding.
+
+    The Arrow IPC ``Message`` flatbuffer holds the ``RecordBatch`` header (field 2), whose
+    field 0 is the batch's length; the body, compressed or not, is not touched.
+    """
+    meta = message.metadata.to_pybytes()
+    root = struct.unpack_from("<I", meta, 0)[0]
+    header = _field(meta, root, 2)
+    if header is None:
+        return 0
+    batch = header + struct.unpack_from("<I", meta, header)[0]
+    length = _field(meta, batch, 0)
+    return 0 if length is None else int(struct.unpack_from("<q", meta, length)[0])
+
+
+def _prescan(buffer: pa.Buffer, media_type: str, check: Callable[[int], None]) -> None:
+    """Check the cell limit against the rows the IPC messages declare, decoding nothing.
+
+    A single compressed batch can inflate a few kilobytes into hundreds of megabytes, so the
+    declared lengths are checked before any batch is read. An IPC file carries the same
+    message stream after its 8-byte magic. Bytes that do not parse here are left for the
+    reader proper, which reports them.
+    """
+    start = 8 if media_type == ARROW_FILE else 0
+    try:
+        messages = pa.ipc.MessageReader.open_stream(buffer.slice(start))
+        rows = 0
+        for message in messages:
+            if message.type == "record batch":
+                rows += _declared_rows(message)
+                check(rows)
+    except TooLarge:
+        raise
+    except (pa.ArrowException, OSError, ValueError, struct.error, IndexError):
+        return
+
+
 def read_table(body: Buffer, media_type: str, limits: Limits | None = None) -> pa.Table:
     """Read the body as an Arrow IPC stream, an Arrow IPC file or Parquet, without copying.
 
@@ -67,6 +117,7 @@ def read_table(body: Buffer, media_type: str, limits: Limits | None = None) -> p
         if media_type == ARROW_STREAM:
             stream = pyarrow.ipc.open_stream(buffer)
             check = _cells_guard(limits, len(stream.schema))
+            _prescan(buffer, media_type, check)
             batches, rows = [], 0
             for batch in stream:
                 rows += batch.num_rows
@@ -76,6 +127,7 @@ def read_table(body: Buffer, media_type: str, limits: Limits | None = None) -> p
         if media_type == ARROW_FILE:
             file = pyarrow.ipc.open_file(buffer)
             check = _cells_guard(limits, len(file.schema))
+            _prescan(buffer, media_type, check)
             batches, rows = [], 0
             for i in range(file.num_record_batches):
                 batch = file.get_batch(i)
