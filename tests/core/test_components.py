@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from core_support import NIST_B, standardize, summary
 from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from sklearn.decomposition import PCA
@@ -12,26 +13,6 @@ from sklearn.linear_model import LinearRegression
 
 from knotwork.core._components import principal_components
 from knotwork.core._errors import OptionError
-
-# NIST StRD Longley certified values (methods.md, stored copy of the NIST header).
-NIST_B = [
-    -3482258.63459582,
-    15.0618722713733,
-    -0.0358191792925910,
-    -2.02022980381683,
-    -1.03322686717359,
-    -0.0511041056535807,
-    1829.15146461355,
-]
-
-
-def summary(x, y):
-    c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
-    return c[:-1, :-1], c[:-1, -1]
-
-
-def standardize(a):
-    return (a - a.mean(axis=0)) / a.std(axis=0, ddof=1)
 
 
 @pytest.fixture(scope="module")
