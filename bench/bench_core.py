@@ -19,6 +19,7 @@ import tracemalloc
 import warnings
 
 import numpy as np
+from _timing import best
 from threadpoolctl import threadpool_limits
 
 from knotwork.core import Options, assess, from_table
@@ -33,15 +34,6 @@ def design(n: int, p: int, seed: int = 1) -> np.ndarray:
     x = rng.normal(size=(n, k)) @ rng.normal(size=(k, p)) + 0.3 * rng.normal(size=(n, p))
     x[:, ::3] += 1e4
     return np.asfortranarray(x)
-
-
-def best_of(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def run_core(x: np.ndarray) -> object:
@@ -109,8 +101,8 @@ def main() -> None:
             for p in ps:
                 x = design(n, p)
                 repeat = 5 if n * p <= 5_000_000 else 2
-                core = best_of(lambda x=x: run_core(x), repeat)
-                gram = best_of(lambda x=x: x.T @ x, repeat)
+                core = best(lambda x=x: run_core(x), repeat)
+                gram = best(lambda x=x: x.T @ x, repeat)
                 loop, how = loop_time(x, args.budget)
                 print(
                     f"{n:>9} {p:>4} {core * 1e3:>9.1f} {gram * 1e3:>8.1f} {core / gram:>9.2f} "

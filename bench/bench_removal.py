@@ -25,11 +25,10 @@ least 100x faster than the naive loop.
 from __future__ import annotations
 
 import argparse
-import time
-from collections.abc import Callable
 
 import numpy as np
 import scipy.linalg
+from _timing import best
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._removal import removal_sequence
@@ -43,15 +42,6 @@ def design(p: int, seed: int = 20261201) -> np.ndarray:
     x = rng.standard_normal((n, f)) @ rng.standard_normal((f, p))
     x += 0.3 * rng.standard_normal((n, p))
     return np.corrcoef(x, rowvar=False)
-
-
-def best(fn: Callable[[], object], repeat: int) -> float:
-    out = float("inf")
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        out = min(out, time.perf_counter() - t)
-    return out
 
 
 def chol_inverse(m: np.ndarray) -> np.ndarray:

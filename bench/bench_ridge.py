@@ -20,10 +20,9 @@ threadpoolctl. Expected shape (issue 3): the trace costs one decomposition plus 
 from __future__ import annotations
 
 import argparse
-import time
-from collections.abc import Callable
 
 import numpy as np
+from _timing import best
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._dependencies import Spectrum
@@ -40,15 +39,6 @@ def problem(p: int, seed: int = 20261201) -> tuple[np.ndarray, np.ndarray, int]:
     y = x[:, :5].sum(axis=1) + rng.standard_normal(n)
     c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
     return c[:-1, :-1], c[:-1, -1], n
-
-
-def best(fn: Callable[[], object], repeat: int) -> float:
-    out = float("inf")
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        out = min(out, time.perf_counter() - t)
-    return out
 
 
 def direct(r: np.ndarray, r_xy: np.ndarray, ks: np.ndarray) -> None:
