@@ -314,7 +314,10 @@ def _merge_moments(
 
 
 def _comoments(
-    columns: Sequence[np.ndarray], w: np.ndarray | None, keep: np.ndarray | None = None
+    columns: Sequence[np.ndarray],
+    w: np.ndarray | None,
+    keep: np.ndarray | None = None,
+    sums: Sequence[float] | None = None,
 ) -> tuple[float, np.ndarray, np.ndarray]:
     """Weighted total, mean and centred co-moments of equal-length columns.
 
@@ -322,7 +325,8 @@ def _comoments(
     centred by a first-pass mean, and multiplied; the residual sums then correct the mean
     (the corrected two-pass algorithm of Chan, Golub & LeVeque 1983), so a column whose mean is
     large against its spread keeps its digits. Raw sums of squares never appear, and no copy
-    of the whole table is made: memory beyond the columns is one block.
+    of the whole table is made: memory beyond the columns is one block. ``sums``, the plain
+    column sums when already known (unweighted, every row kept), spare the first pass.
     """
     q = len(columns)
     if keep is not None and keep.all():
@@ -333,7 +337,10 @@ def _comoments(
     n = columns[0].shape[0] if q else 0
     if w is None:
         total = float(n)
-        mean = np.array([np.mean(c) for c in columns])
+        if sums is None or keep is not None:
+            sums = [np.add.reduce(c) for c in columns]
+        # np.mean is this same pairwise sum over n, so the mean does not depend on who summed.
+        mean = np.array(sums, dtype=float) / total
     else:
         total = float(np.sum(w))
         mean = np.array([np.dot(w, c) for c in columns]) / total
@@ -568,22 +575,29 @@ def _check_terms(
 # From rows
 
 
-def _column_array(values: object, pointer: str) -> tuple[np.ndarray, bool]:
-    """The column as a float array, and whether it is complete (no missing value)."""
+def _column_array(values: object, pointer: str) -> tuple[np.ndarray, float | None]:
+    """The column as a float array, and its sum when it is complete (no missing value).
+
+    The sum doubles as the completeness check: it is finite only when every value is, so the
+    common case reads the column once and the mean comes for free. A finite column whose sum
+    overflows is complete too (its infinite sum is returned, as ``np.mean`` would give); None
+    is returned only for a column with a missing value.
+    """
     try:
         a = np.asarray(values, dtype=float)
     except (TypeError, ValueError):
         raise InputError.at(pointer, "values must be numbers or null") from None
     if a.ndim != 1:
         raise InputError.at(pointer, "a column must be a flat list of numbers")
-    if np.isfinite(a).all():  # one pass for the common case: nothing missing, nothing infinite
-        return a, True
+    total = np.add.reduce(a) if a.size else 0.0
+    if np.isfinite(total) or np.isfinite(a).all():
+        return a, float(total)
     if np.isinf(a).any():
         row = int(np.flatnonzero(np.isinf(a))[0])
         raise InputError.at(
             pointer, f"values must be finite; row {row} is infinite (null marks a missing value)"
         )
-    return a, False
+    return a, None
 
 
 def from_table(
@@ -645,10 +659,13 @@ def from_table(
 
     arrays: dict[str, np.ndarray] = {}
     incomplete: set[str] = set()
+    sums: dict[str, float] = {}
     for name, v in columns.items():
-        arrays[name], complete = _column_array(v, f"/columns/{esc(name)}")
-        if not complete:
+        arrays[name], total = _column_array(v, f"/columns/{esc(name)}")
+        if total is None:
             incomplete.add(name)
+        else:
+            sums[name] = total
     labels = {}
     for name, v in categorical.items():
         vals = list(v)
@@ -765,7 +782,10 @@ def from_table(
         wk = None if w is None else w[keep]
         return _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
 
-    total, mean, com = _comoments(design, w, keep)
+    known = [sums.get(name) for name, _, _ in predictors]
+    known += [sums.get(response)] if response is not None else []
+    col_sums = None if None in known else [float(t) for t in known if t is not None]
+    total, mean, com = _comoments(design, w, keep, col_sums)
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     return Summary(
         names=names,
