@@ -25,6 +25,9 @@ GRID_SPAN = 100.0
 #: Relative width at which the bisection for the VIF-threshold k stops.
 BISECTION_RTOL = 1e-10
 
+#: Values of k evaluated at once in each round of the search for the VIF-threshold k.
+_BRACKET_POINTS = 34
+
 HKB = "hoerl_kennard_baldwin"
 LAWLESS_WANG = "lawless_wang"
 GCV = "gcv"
@@ -253,31 +256,40 @@ def _opt(x: float) -> float | None:
 
 
 def _smallest_k_under(eig: _Eigen, threshold: float) -> tuple[float | None, str | None]:
-    """Smallest k with every ridge VIF at or below the threshold, by bisection in log k.
+    """Smallest k with every ridge VIF at or below the threshold, by bracketing in log k.
 
     The largest ridge VIF decreases in k (each term l/(l + k)^2 does), and is at most 1/(4k),
-    so ``hi = 1/(4T)`` always satisfies the bound; ``lo`` is found by stepping down by decades.
+    so ``hi = 1/(4T)`` always satisfies the bound. Decades below it locate the crossing, then
+    each round evaluates the bracket at ``_BRACKET_POINTS`` log-spaced values at once and keeps
+    the sub-interval where the bound starts to hold, until its relative width is at most
+    ``BISECTION_RTOL``: the same answer as bisection, in about 8 evaluations instead of 40.
     """
     if eig.null_dim == 0 and eig.max_vif(0.0) <= threshold:
         return 0.0, "every VIF is already at or below the threshold without shrinkage"
     hi = 1.0 / (4.0 * threshold)
-    lo = hi
     floor = eig.lref * 1e-12
-    while eig.max_vif(lo) <= threshold:
-        hi = lo
-        lo /= 10.0
-        if lo < floor:
-            return None, (
-                "every k > 0 brings the ridge VIFs under the threshold (they tend to those of "
-                "the pseudo-inverse as k falls, because of the exact dependency), but at k = 0 "
-                "they are not finite: there is no smallest k"
-            )
+    decades = int(math.log10(hi / floor)) + 2 if 0 < floor < hi else 1
+    ks = hi / 10.0 ** np.arange(1, decades + 1)
+    ks = ks[ks >= floor]  # k below lambda_ref * 1e-12 is not looked at
+    ok = eig.vifs(ks).max(axis=0) <= threshold
+    if ok.all():
+        return None, (
+            "every k > 0 brings the ridge VIFs under the threshold (they tend to those of "
+            "the pseudo-inverse as k falls, because of the exact dependency), but at k = 0 "
+            "they are not finite: there is no smallest k"
+        )
+    first_bad = int(np.argmin(ok))  # ks fall, so the first failing decade bounds from below
+    lo = float(ks[first_bad])
+    hi = float(ks[first_bad - 1]) if first_bad > 0 else hi
     while hi / lo - 1.0 > BISECTION_RTOL:
-        mid = math.sqrt(lo * hi)
-        if eig.max_vif(mid) <= threshold:
-            hi = mid
-        else:
-            lo = mid
+        inner = np.geomspace(lo, hi, _BRACKET_POINTS)[1:-1]
+        good = eig.vifs(inner).max(axis=0) <= threshold
+        j = int(np.argmax(good)) if good.any() else inner.size  # first k that satisfies
+        new_lo = float(inner[j - 1]) if j > 0 else lo
+        new_hi = float(inner[j]) if j < inner.size else hi
+        if (new_lo, new_hi) == (lo, hi):  # the grid no longer separates floats
+            break
+        lo, hi = new_lo, new_hi
     return hi, None
 
 
@@ -310,8 +322,21 @@ def _gcv(eig: _Eigen, dof: float) -> tuple[float | None, str | None]:
         )
     t_lo = math.log(ks[max(i - 1, 0)])
     t_hi = math.log(ks[i + 1])
+    # The same V(k) for one k, over the non-null directions only (the others add zeros):
+    # Brent's steps are scalar, and the array version's masks cost more than its arithmetic.
+    assert eig.c2 is not None
+    lam, c2 = eig.l[eig.pos], eig.c2[eig.pos]
+
+    def v_at(t: float) -> float:
+        k = math.exp(t)
+        q = lam + k
+        den = dof - float(np.sum(lam / q))
+        if den <= 0:
+            return math.inf
+        return (1.0 - float(np.sum(c2 * (lam + 2.0 * k) / (q * q)))) / (den * den)
+
     res = scipy.optimize.minimize_scalar(
-        lambda t: float(v(np.array([math.exp(t)]))[0]),
+        v_at,
         bounds=(t_lo, t_hi),
         method="bounded",
         options={"xatol": 1e-10},
@@ -473,36 +498,52 @@ def ridge_analysis(
             icpt = float(response_mean - beta @ means_a)
         return tuple(beta.tolist()), icpt
 
+    # The whole trace as a few array operations, turned into Python numbers once: per-point
+    # numpy calls cost more than the arithmetic at the sizes a request has.
     vifs = eig.vifs(ks)  # (p, m)
     edf = eig.edf(ks)
     zero_aliased = eig.null_dim > 0
     have_y = eig.c is not None
+    vif_rows = vifs.T.tolist()
+    max_vifs = vifs.max(axis=0).tolist()
+    edf_list = edf.tolist()
+    # Filled only when the response is known (and the scales, and the means, for the last two).
+    rss_list: list[float] = []
+    coef_rows: list[list[float]] = []
+    beta_rows: list[list[float]] = []
+    icpt_list: list[float] = []
     if have_y:
         coefs = eig.coefficients(ks)
-        rss = eig.rss(ks)
+        rss_list = eig.rss(ks).tolist()
+        coef_rows = coefs.T.tolist()
+        if scale is not None:
+            betas = coefs * scale[:, None]
+            beta_rows = betas.T.tolist()
+            if intercept and means_a is not None and response_mean is not None:
+                icpt_list = (response_mean - means_a @ betas).tolist()
     trace = []
     for i, k in enumerate(ks.tolist()):
-        col = vifs[:, i]
-        vif_list: list[float | None] = col.tolist()
-        max_vif: float | None = float(col.max())
-        if k == 0.0 and zero_aliased:
+        vif_list: list[float | None] = list(vif_rows[i])
+        max_vif: float | None = max_vifs[i]
+        aliased_point = k == 0.0 and zero_aliased
+        if aliased_point:
             vif_list = [None if a else v for v, a in zip(vif_list, eig.involved, strict=True)]
             max_vif = None
-        b = coef_t = orig = icpt = r2 = resvar = None
+        coef_t = orig = icpt = r2 = resvar = None
         if have_y:
-            r2 = float(1.0 - rss[i])
-            den = dof - edf[i]
-            resvar = float(rss[i] * dof / den) if den > 0 else None
-            if not (k == 0.0 and zero_aliased):
-                b = coefs[:, i]
-                coef_t = tuple(b.tolist())
-                orig, icpt = original(b)
+            r2 = 1.0 - rss_list[i]
+            den = dof - edf_list[i]
+            resvar = rss_list[i] * dof / den if den > 0 else None
+            if not aliased_point:
+                coef_t = tuple(coef_rows[i])
+                orig = tuple(beta_rows[i]) if beta_rows else None
+                icpt = icpt_list[i] if icpt_list else None
         trace.append(
             RidgePoint(
-                k=float(k),
+                k=k,
                 vif=tuple(vif_list),
                 max_vif=max_vif,
-                effective_df=float(edf[i]),
+                effective_df=edf_list[i],
                 coefficients=coef_t,
                 r_squared=r2,
                 residual_variance=resvar,
