@@ -9,7 +9,8 @@ starts local servers on free 127.0.0.1 ports and prints, side by side:
 (c) the full ``POST /v1/assess`` of a 100k x 50 table as Arrow IPC (about 40 MB) and as JSON
     columns (about 95 MB), under uvicorn and granian;
 (d) the rate and latency of small correlation requests (p = 20) at concurrency 32 against the
-    bare app's rate with a 1 KB body.
+    bare app's rate with a 1 KB body; beside them, litestar itself with one draining route and
+    nothing else (the framework's own ceiling) and the service's ``GET /healthz``.
 
 Goals (issue 4): (c) Arrow within 1.3 x (a) + (b); JSON decoding at least 150 MB/s; (d) at
 least half the bare app's rate with p99 under 25 ms. The machine is shared, so each figure is a
@@ -67,6 +68,19 @@ async def bare_app(
     await send({"type": "http.response.body", "body": b'{"ok":true}'})
 
 
+def plain_litestar_app() -> Any:
+    """litestar itself with one route that drains the body and answers 11 bytes: no middleware,
+    no guard, no OpenAPI, no work. It shows how much of the bare rate the framework keeps."""
+    from litestar import Litestar, Request, post
+
+    @post("/", status_code=200, media_type="application/json")
+    async def drain(request: Request[Any, Any, Any]) -> bytes:
+        await request.body()
+        return b'{"ok":true}'
+
+    return Litestar([drain], openapi_config=None)
+
+
 # --------------------------------------------------------------------------------------------
 # Servers
 
@@ -84,12 +98,19 @@ class Server:
         self.port = free_port()
         self.url = f"http://{HOST}:{self.port}"
         environment = {**os.environ, **env, "PYTHONPATH": str(HERE)}
-        if kind == "bare" and server == "uvicorn":
+        target = "bench_service:bare_app"
+        if kind == "plain":
+            target = "bench_service:plain_litestar_app"
+        if kind in ("bare", "plain") and server == "uvicorn":
             command = [
                 sys.executable,
                 "-m",
                 "uvicorn",
-                "bench_service:bare_app",
+                target,
+                *(["--factory"] if kind == "plain" else []),
+                # The service's own parser (see knotwork.__main__), so the floors are like for like.
+                "--http",
+                "h11",
                 "--host",
                 HOST,
                 "--port",
@@ -98,11 +119,12 @@ class Server:
                 "--log-level",
                 "warning",
             ]
-        elif kind == "bare":
+        elif kind in ("bare", "plain"):
             command = [
                 sys.executable,
                 "-m",
                 "granian",
+                *(["--factory"] if kind == "plain" else []),
                 "--interface",
                 "asgi",
                 "--host",
@@ -111,7 +133,7 @@ class Server:
                 str(self.port),
                 "--log-level",
                 "warning",
-                "bench_service:bare_app",
+                target,
             ]
         else:
             command = [sys.executable, "-m", "knotwork", "--host", HOST, "--port", str(self.port),
@@ -130,7 +152,9 @@ class Server:
             if self.process.poll() is not None:
                 raise RuntimeError(f"server exited with {self.process.returncode}")
             try:
-                if httpx.get(self.url + path, timeout=2).status_code == 200:
+                # The plain app has only a POST route: any answer means it is listening.
+                status = httpx.get(self.url + path, timeout=2).status_code
+                if status == 200 or (kind == "plain" and status < 500):
                     return
             except httpx.TransportError:
                 pass
@@ -342,6 +366,11 @@ def main() -> int:
             rates[f"{server} bare 1 KB"] = rate(bare.port, "/", one_kb, 32, args.seconds)
         finally:
             bare.stop()
+        plain = Server("plain", server, env)
+        try:
+            rates[f"{server} plain litestar 1 KB"] = rate(plain.port, "/", one_kb, 32, args.seconds)
+        finally:
+            plain.stop()
         service = Server("knotwork", server, env)
         try:
             query = "?sections=" + ",".join(SECTIONS)
