@@ -383,6 +383,17 @@ EOF
         -H 'Content-Type: application/json' --data-binary "$few" "$url/v1/assess"
     problem_ok "$state/too-few-rows.body" 422
     request metrics 200 text/plain "$url/metrics"
+    # The offline docs page and every asset it links, from the image's own files.
+    request docs 200 text/html "$url/docs"
+    local links link n=0
+    links=$(grep -o -E '(src|href)="[^"]*"' "$state/docs.body" | sed -E 's/^[a-z]+="(.*)"$/\1/')
+    for link in $links; do
+        case "$link" in /*) ;; *) fail "the docs page links $link, which this service does not serve" ;; esac
+        request docs-asset 200 "" "$url$link"
+        [ "$(wc -c <"$state/docs-asset.body")" -gt 1000 ] || fail "docs asset $link is nearly empty"
+        n=$((n + 1))
+    done
+    [ "$n" -ge 3 ] || fail "the docs page links $n assets, expected its CSS, bundle and preset"
 }
 
 check_inside() {
