@@ -4,7 +4,8 @@ Settings come from the ``KNOTWORK_*`` environment variables (see :mod:`knotwork.
 checked before anything starts. Without tokens the service runs open only on a loopback
 address; on any other address it refuses to start unless ``KNOTWORK_ALLOW_OPEN=true``.
 
-The default server is uvicorn (h11 parser, which bounds request heads, and uvloop);
+The default server is uvicorn (h11 parser, which bounds request heads, with a time limit per
+head added by :mod:`knotwork._uvicorn`, and uvloop);
 ``--server granian`` is the alternative. ``bench/bench_service.py`` measures both side by
 side: granian moves a bare 40 MB body faster, but the full Arrow request was no faster on it
 (uvicorn 0.9-1.1 x floor + compute, granian 1.2-1.9 x) and small requests ran at the same
@@ -71,10 +72,13 @@ def _prepare_process(settings: Settings) -> None:
 
 def worker_app() -> Any:
     """Application factory for server worker processes (settings read again from the env)."""
+    from knotwork._uvicorn import HeadLimitedH11Protocol
     from knotwork.api import create_app
 
     settings = Settings.from_env()
     _prepare_process(settings)
+    # Each worker process sets its own (the class is per process); granian ignores it.
+    HeadLimitedH11Protocol.head_timeout_s = settings.request_timeout_s
     return create_app(settings)
 
 
@@ -144,6 +148,8 @@ _MAX_HEAD_BYTES = 64 * 1024
 def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
     import uvicorn
 
+    from knotwork._uvicorn import HeadLimitedH11Protocol
+
     common: dict[str, Any] = {
         "host": host,
         "port": port,
@@ -152,8 +158,9 @@ def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
         "server_header": False,
         "timeout_graceful_shutdown": max(5, int(settings.request_timeout_s) + 5),
         # h11 bounds a request head (httptools buffers one of any size): a header flood gets
-        # a 400 at 64 KiB. Small-request rates measured the same on both parsers here.
-        "http": "h11",
+        # a 400 at 64 KiB. Small-request rates measured the same on both parsers here. The
+        # subclass adds a time limit per head (uvicorn has none): see knotwork._uvicorn.
+        "http": HeadLimitedH11Protocol,
         "h11_max_incomplete_event_size": _MAX_HEAD_BYTES,
     }
     if workers == 1:

@@ -17,6 +17,7 @@ import gzip
 import io
 import json
 import os
+import socket
 import time
 import zlib
 from collections.abc import Callable, Iterator
@@ -169,19 +170,66 @@ def test_a_trickled_body_is_cut_off_by_the_read_time_limit(server: Server) -> No
     still_serves(server)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "service bug: uvicorn sets no time limit on a request head (httptools or h11), so a "
-        "client that trickles header lines holds its connection open for as long as it likes"
-    ),
-)
 def test_a_trickled_request_head_is_cut_off(server: Server) -> None:
     head = b"GET /healthz HTTP/1.1\r\nHost: x\r\n"
     lines = [b"X-Slow-%d: v\r\n" % i for i in range(1000)]
     # The bound: the request time limit (2 s) plus slack; the trickle would last 200 s.
+    started = time.monotonic()
     answer = raw_exchange(_port(server), head, lines, pause=0.2, timeout=8)
-    assert answer.closed or answer.status is not None, "still open after 8 s"
+    assert answer.status == 408, "still open after 8 s"
+    doc = problem_of(answer)
+    assert doc["type"] == PROBLEM + "head-timeout"
+    assert "2 s" in doc["detail"]
+    assert time.monotonic() - started < 2 + 3
+    still_serves(server)
+
+
+def test_a_silent_connection_is_closed(server: Server) -> None:
+    # A connection that never sends a byte gets the same limit (uvicorn alone keeps it open).
+    started = time.monotonic()
+    with socket.create_connection(("127.0.0.1", _port(server)), timeout=8) as sock:
+        reply = _read_response(sock)
+    assert reply.startswith(b"HTTP/1.1 408"), reply[:60]
+    assert b'"type":"https://knotwork.example/problems/head-timeout"' in reply.replace(b" ", b"")
+    assert time.monotonic() - started < 2 + 3
+    still_serves(server)
+
+
+def _read_response(sock: socket.socket) -> bytes:
+    """One whole response (head and Content-Length body) from a raw socket."""
+    data = b""
+    while b"\r\n\r\n" not in data:
+        chunk = sock.recv(4096)
+        if not chunk:
+            return data
+        data += chunk
+    head, _, body = data.partition(b"\r\n\r\n")
+    length = 0
+    for line in head.split(b"\r\n")[1:]:
+        name, _, value = line.partition(b":")
+        if name.strip().lower() == b"content-length":
+            length = int(value)
+    while len(body) < length:
+        chunk = sock.recv(4096)
+        if not chunk:
+            break
+        body += chunk
+    return head + b"\r\n\r\n" + body
+
+
+def test_a_kept_alive_connection_limits_each_head(server: Server) -> None:
+    # The limit runs again from the first byte of the next head, not from the first request.
+    with socket.create_connection(("127.0.0.1", _port(server)), timeout=8) as sock:
+        for _ in range(3):
+            time.sleep(1.0)  # under the keep-alive idle limit, and the heads' time limit too
+            sock.sendall(b"GET /healthz HTTP/1.1\r\nHost: x\r\n\r\n")
+            reply = _read_response(sock)
+            assert reply.startswith(b"HTTP/1.1 200"), reply[:60]
+        sock.sendall(b"GET /healthz HTTP/1.1\r\n")
+        started = time.monotonic()
+        reply = _read_response(sock)
+    assert reply.startswith(b"HTTP/1.1 408"), reply[:60]
+    assert 1.0 < time.monotonic() - started < 2 + 3
 
 
 # --- compressed bodies ----------------------------------------------------------------------

@@ -203,7 +203,8 @@ _COMMON_RESPONSES = {
         _problem_example(403, "forbidden", "the bearer token is not accepted", None, ""),
     ),
     408: _problem(
-        "The body did not arrive within the time limit.",
+        "The body did not arrive within the time limit (a request head that does not arrive "
+        "within it is answered 408 head-timeout by the server layer, on every route).",
         _problem_example(408, "body-timeout", "the body did not arrive within 30 s; send it at "
                          "once, or a smaller one", None, ""),
     ),
