@@ -234,7 +234,13 @@ def test_readiness_is_503_before_start_up() -> None:
 def test_metrics_are_labelled_by_route_template(client: Any) -> None:
     post(client, with_sections(CORRELATION_EXAMPLE, ["variables"]))
     client.post("/v1/assess?threshold=9", content=b"x", headers={"Content-Type": ARROW})
-    text = client.get("/metrics").text
+    response = client.get("/metrics")
+    # The Prometheus text format's media type (prometheus_client's CONTENT_TYPE_LATEST), with
+    # its charset once.
+    from prometheus_client import CONTENT_TYPE_LATEST
+
+    assert response.headers["content-type"] == CONTENT_TYPE_LATEST
+    text = response.text
     assert 'knotwork_requests_total{app_name="knotwork",method="POST",path="/v1/assess"' in text
     assert "knotwork_compute_seconds_bucket" in text
     assert "threshold=9" not in text

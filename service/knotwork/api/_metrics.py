@@ -37,6 +37,11 @@ COMPUTE_SECONDS = Histogram(
 )
 
 
+#: The exposition format's media type without its charset: litestar appends the charset to
+#: every text/* type, and the full constant would carry it twice.
+_MEDIA_TYPE = CONTENT_TYPE_LATEST.split("; charset=")[0]
+
+
 def prometheus_config() -> PrometheusConfig:
     """Request counts and durations labelled by route template, never by raw path."""
     return PrometheusConfig(app_name="knotwork", prefix="knotwork", group_path=True)
@@ -49,7 +54,7 @@ def prometheus_config() -> PrometheusConfig:
     summary="Prometheus metrics",
     operation_id="metrics",
     security=[{}],
-    media_type=CONTENT_TYPE_LATEST,
+    media_type=_MEDIA_TYPE,
     response_description="Counters and histograms in the Prometheus text format.",
 )
 async def metrics() -> Response[bytes]:
@@ -58,4 +63,4 @@ async def metrics() -> Response[bytes]:
     if os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
         registry = CollectorRegistry()
         multiprocess.MultiProcessCollector(registry)  # type: ignore[no-untyped-call]
-    return Response(generate_latest(registry), media_type=CONTENT_TYPE_LATEST)
+    return Response(generate_latest(registry), media_type=_MEDIA_TYPE)
