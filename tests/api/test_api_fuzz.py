@@ -10,9 +10,8 @@ from __future__ import annotations
 import pytest
 
 schemathesis = pytest.importorskip("schemathesis")
-from api_support import ARROW, ARROW_FILE, PARQUET, arrow_file, arrow_stream, arrow_table, parquet  # noqa: E402
+import fuzz_bodies  # noqa: E402
 from hypothesis import HealthCheck, settings  # noqa: E402
-from hypothesis import strategies as st  # noqa: E402
 from schemathesis.checks import (  # noqa: E402
     content_type_conformance,
     not_a_server_error,
@@ -23,20 +22,9 @@ from schemathesis.checks import (  # noqa: E402
 from knotwork.api import create_app  # noqa: E402
 from knotwork.settings import Settings  # noqa: E402
 
-_TABLE = arrow_table(
-    {
-        "a": [1.0, 2.0, 3.0, 4.0, 5.0],
-        "b": [2.0, 1.0, 4.0, 3.0, 6.0],
-        "c": [1.0, 3.0, 2.0, 5.0, 4.0],
-    },
-    {"g": ["x", "y", "x", "y", "x"]},
-)
-# Binary bodies: a valid table, a truncated one, or random bytes.
-for media, encode in ((ARROW, arrow_stream), (ARROW_FILE, arrow_file), (PARQUET, parquet)):
-    valid = encode(_TABLE)
-    schemathesis.openapi.media_type(
-        media, st.sampled_from([valid, valid[: len(valid) // 2]]) | st.binary(max_size=256)
-    )
+# Binary bodies: valid and broken tables in each encoding, or random bytes (one set for
+# every fuzzing module: see tests/fuzz_bodies.py).
+fuzz_bodies.register()
 
 app = create_app(Settings(concurrency=2))
 schema = schemathesis.openapi.from_asgi("/openapi.json", app)

@@ -34,10 +34,10 @@ import pytest
 
 schemathesis = pytest.importorskip("schemathesis")
 
+import fuzz_bodies  # noqa: E402
 import pyarrow as pa  # noqa: E402
 from e2e_support import Server, serve  # noqa: E402
 from hypothesis import HealthCheck, settings  # noqa: E402
-from hypothesis import strategies as st  # noqa: E402
 from rel_support import JSON, OPENAPI  # noqa: E402
 from schemathesis.checks import not_a_server_error  # noqa: E402
 from schemathesis.specs.openapi.checks import (  # noqa: E402
@@ -54,52 +54,12 @@ REPORT = os.environ.get("KNOTWORK_FUZZ_REPORT")
 #: Set by bench/bench_fuzz.py with pytest's --hypothesis-seed: random, reproducible draws.
 DERANDOMIZE = "KNOTWORK_FUZZ_SEED" not in os.environ
 PROBLEM_BASE = "https://knotwork.example/problems/"
-ARROW_STREAM = "application/vnd.apache.arrow.stream"
-ARROW_FILE = "application/vnd.apache.arrow.file"
-PARQUET = "application/vnd.apache.parquet"
 
 #: What was sent and answered, by (method, path, media type, generation mode, status).
 TALLY: Counter[tuple[str, str, str, str, int]] = Counter()
 
 
-def _binary_bodies() -> dict[str, list[bytes]]:
-    import io
-
-    import pyarrow.parquet as pq
-
-    tables = [
-        pa.table(
-            {
-                "a": [1.0, 2.0, 3.0, 4.0, 5.0, 6.0],
-                "b": [2.0, 1.0, 4.0, 3.0, 6.0, 5.5],
-                "c": [1.0, 3.0, 2.0, 5.0, 4.0, 7.0],
-                "g": ["x", "y", "x", "y", "x", "z"],
-            }
-        ),
-        pa.table({"a": [1.0, 2.0, 3.0], "b": [1.0, None, 2.0]}),  # a missing value
-        pa.table({"a": [1.0, 2.0, float("nan")], "b": [1.0, 2.0, 2.0]}),  # NaN
-        pa.table({"a": [1.0, 1.0, 1.0], "b": [1.0, 2.0, 3.0]}),  # a constant column
-        pa.table({"a": pa.array([], pa.float64())}),  # no rows
-        pa.table({"s": ["only", "strings", "here"]}),
-        pa.table({"a": [1, 2, 3, 4], "b": [True, False, True, True]}),  # ints and booleans
-    ]
-    out: dict[str, list[bytes]] = {ARROW_STREAM: [], ARROW_FILE: [], PARQUET: []}
-    for table in tables:
-        for media in out:
-            sink = io.BytesIO()
-            if media == PARQUET:
-                pq.write_table(table, sink)
-            else:
-                make = pa.ipc.new_stream if media == ARROW_STREAM else pa.ipc.new_file
-                with make(sink, table.schema) as writer:
-                    writer.write_table(table)
-            whole = sink.getvalue()
-            out[media] += [whole, whole[: len(whole) // 2], whole[:-1]]
-    return out
-
-
-for _media, _bodies in _binary_bodies().items():
-    schemathesis.openapi.media_type(_media, st.sampled_from(_bodies) | st.binary(max_size=512))
+fuzz_bodies.register()
 
 
 def _view(json_bodies: bool) -> dict:
@@ -233,7 +193,7 @@ def test_threshold_just_above_one_is_answered(server: Server, encoding: str) -> 
         response = httpx.post(
             server.url + "/v1/assess?threshold=1.0000000000000002&response=yield_kg",
             content=sink.getvalue(),
-            headers={**auth, "Content-Type": ARROW_STREAM},
+            headers={**auth, "Content-Type": fuzz_bodies.ARROW_STREAM},
             timeout=60,
         )
     assert response.status_code == 200, response.text
