@@ -220,6 +220,21 @@ def test_health_and_readiness(client: Any) -> None:
     assert ready.json()["capacity"] == 6  # 2 slots + a queue of 4
 
 
+def test_warm_up_loads_every_codec_before_readiness() -> None:
+    # In a fresh interpreter: after the start-up warm-up, the modules a first Arrow or Parquet
+    # request would import (pyarrow's Parquet reader, and pandas, which pyarrow's conversion to
+    # numpy loads) are already there.
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from knotwork.api._app import _warm_up; _warm_up(); "
+        "print(all(m in sys.modules for m in ('pandas', 'pyarrow.parquet', 'pyarrow.ipc')))"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "True", out.stderr
+
+
 def test_readiness_is_503_before_start_up() -> None:
     from litestar.testing import TestClient
 

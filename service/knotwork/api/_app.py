@@ -17,7 +17,7 @@ from knotwork.settings import Settings
 
 from ._auth import TokenGate
 from ._docs import assets_router, docs_router, render_plugins
-from ._examples import TABLE_EXAMPLE
+from ._examples import TABLE_COLUMNS, TABLE_EXAMPLE
 from ._logging import AccessLog
 from ._metrics import metrics, prometheus_config
 from ._problems import handle_exception
@@ -45,10 +45,26 @@ tests; decisions on regulated models follow local rules and qualified review.
 
 def _warm_up() -> None:
     # One small, complete assessment (rows, a categorical term, a response, every section)
-    # loads every module and BLAS kernel before the first client waits.
-    from knotwork.codecs import decode_assess, run
+    # loads every module and BLAS kernel before the first client waits; the same table as an
+    # Arrow stream and as Parquet loads the binary codecs (pyarrow's conversion to numpy
+    # imports pandas, hundreds of modules), so no first request pays for an import.
+    import io
+
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from knotwork.codecs import ARROW_STREAM, PARQUET, decode_assess, decode_table_body, run
 
     run(decode_assess(msgspec.json.encode(TABLE_EXAMPLE), Limits()))
+    table = pa.table(
+        {name: pa.array(values, pa.float64()) for name, values in TABLE_COLUMNS.items()}
+    )
+    stream, parquet = io.BytesIO(), io.BytesIO()
+    with pa.ipc.new_stream(stream, table.schema) as writer:
+        writer.write_table(table)
+    pq.write_table(table, parquet)
+    for body, media in ((stream.getvalue(), ARROW_STREAM), (parquet.getvalue(), PARQUET)):
+        run(decode_table_body(body, media, b"sections=variables", Limits()))
 
 
 def create_app(settings: Settings | None = None) -> Litestar:
