@@ -11,7 +11,8 @@ PORT   ?= 8000
 
 $(STAMP): pyproject.toml constraints.txt clients/python/pyproject.toml
 	$(PYTHON) -m venv $(VENV)
-	$(BIN)/pip install --quiet --disable-pip-version-check -c constraints.txt \
+	PIP_CONSTRAINT=$(CURDIR)/constraints.txt $(BIN)/pip install --quiet \
+		--disable-pip-version-check -c constraints.txt \
 		-e '.[dev]' -e './clients/python[all]'
 	touch $(STAMP)
 
