@@ -160,3 +160,63 @@ def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None
     got = from_table({f"c{j}": x[:, j] for j in range(3)})
     assert_allclose(got.comoments, ref.comoments, rtol=1e-10)
     assert_allclose(got.means, ref.means, rtol=1e-13, atol=1e-15)
+
+
+def _small_blocks(monkeypatch: pytest.MonkeyPatch, rows: int, columns: int) -> None:
+    """Row blocks of ``rows`` rows for ``columns`` summarized columns (plus the ones column)."""
+    import knotwork.core._summary as summary_module
+
+    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", rows * 8 * (columns + 1))
+
+
+def test_one_pass_over_sorted_rows_keeps_its_digits(monkeypatch, rng) -> None:
+    # Rows sorted by a column whose mean is a million times its spread: the worst order for
+    # the one-pass summary, whose shift is the mean of the first row block (here 50 of 1000
+    # rows). Reference: the exactly rounded mean (math.fsum) subtracted first, then numpy's
+    # cross-products of the centred values; and the checked path (weights of one).
+    import math
+
+    _small_blocks(monkeypatch, 50, 3)
+    mix = np.array([[1.0, 0.5, 0.0], [0.0, 1.0, 0.3], [0.0, 0.0, 1.0]])
+    x = rng.normal(size=(1000, 3)) @ mix + [1e6, -3e4, 2.5]
+    x = x[np.argsort(x[:, 0])]
+    cols = {f"c{j}": x[:, j] for j in range(3)}
+    got = from_table(cols)
+    mean = np.array([math.fsum(x[:, j]) / len(x) for j in range(3)])
+    centred = x - mean
+    assert_allclose(got.means, mean, rtol=1e-15)
+    assert_allclose(got.comoments, centred.T @ centred, rtol=1e-12)
+    checked = from_table({**cols, "w": np.ones(len(x))}, weights="w")
+    assert_allclose(got.comoments, checked.comoments, rtol=1e-12)
+    assert_allclose(_vifs(got), _vifs(checked), rtol=1e-12)
+
+
+@pytest.mark.parametrize("row", [3, 777])  # in the first row block, and in a later one
+def test_a_missing_value_anywhere_gives_the_checked_answer(monkeypatch, rng, row) -> None:
+    from knotwork.core import MissingValuesError
+
+    _small_blocks(monkeypatch, 50, 3)
+    x = rng.normal(size=(1000, 3))
+    x[row, 1] = np.nan
+    cols = {f"c{j}": x[:, j] for j in range(3)}
+    with pytest.raises(MissingValuesError) as info:
+        from_table(cols)
+    assert [(p.pointer, p.reason) for p in info.value.problems] == [
+        ("/columns/c1", "1 of 1000 values missing")
+    ]
+    dropped = from_table(cols, missing="drop_rows")
+    complete = from_table({k: np.delete(v, row) for k, v in cols.items()})
+    assert dropped.rows == 999
+    assert_allclose(dropped.comoments, complete.comoments, rtol=1e-12)
+
+
+def test_an_infinite_value_in_a_later_block_is_named(monkeypatch, rng) -> None:
+    from knotwork.core import InputError
+
+    _small_blocks(monkeypatch, 50, 3)
+    x = rng.normal(size=(1000, 3))
+    x[900, 2] = -np.inf
+    with pytest.raises(InputError) as info:
+        from_table({f"c{j}": x[:, j] for j in range(3)})
+    assert info.value.problems[0].pointer == "/columns/c2"
+    assert "row 900 is infinite" in info.value.problems[0].reason

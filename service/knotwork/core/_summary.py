@@ -7,6 +7,7 @@ code path and the answer for rows equals the answer for their summary.
 
 from __future__ import annotations
 
+import contextlib
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
@@ -313,39 +314,33 @@ def _merge_moments(
     return n, mean, com
 
 
-def _comoments(
+class _NotFinite(Exception):
+    """A value is missing or infinite (or a sum overflowed): summarize the checked way."""
+
+
+def _gram(
     columns: Sequence[np.ndarray],
     w: np.ndarray | None,
-    keep: np.ndarray | None = None,
-    sums: Sequence[float] | None = None,
+    n: int,
+    step: int,
+    optimistic: bool,
 ) -> tuple[float, np.ndarray, np.ndarray]:
-    """Weighted total, mean and centred co-moments of equal-length columns.
-
-    Rows where ``keep`` is False are left out. Row blocks are gathered from the columns,
-    centred by a first-pass mean, and multiplied; the residual sums then correct the mean
-    (the corrected two-pass algorithm of Chan, Golub & LeVeque 1983), so a column whose mean is
-    large against its spread keeps its digits. Raw sums of squares never appear, and no copy
-    of the whole table is made: memory beyond the columns is one block. ``sums``, the plain
-    column sums when already known (unweighted, every row kept), spare the first pass.
-    """
+    """Total, shift and the shifted cross-products with a column of ones (or sqrt(w))
+    appended: the row-block work of :func:`_comoments` (``optimistic`` needs ``w`` None)."""
     q = len(columns)
-    if keep is not None and keep.all():
-        keep = None
-    if keep is not None:
-        columns = [c[keep] for c in columns]
-        w = None if w is None else w[keep]
-    n = columns[0].shape[0] if q else 0
-    if w is None:
+    if optimistic:
         total = float(n)
-        if sums is None or keep is not None:
-            sums = [np.add.reduce(c) for c in columns]
-        # np.mean is this same pairwise sum over n, so the mean does not depend on who summed.
-        mean = np.array(sums, dtype=float) / total
+        # Any shift gives the same co-moments in exact arithmetic; rounding grows with
+        # ((mean - shift) / sd)^2, which for the mean of b of n rows is at most n / b - 1
+        # (Cauchy-Schwarz), so about 100 eps at a million rows even when the rows are sorted.
+        mean = np.array([np.add.reduce(c[:step]) / max(1, min(step, n)) for c in columns])
+    elif w is None:
+        total = float(n)
+        mean = np.array([np.mean(c) for c in columns])
     else:
         total = float(np.sum(w))
         mean = np.array([np.dot(w, c) for c in columns]) / total
     gram = np.zeros((q + 1, q + 1))
-    step = max(1, _BLOCK_BYTES // (8 * (q + 1)))
     # Fortran order: gathering a column into the block is one contiguous copy (measured
     # 1.6x faster than a C-order block at n = 100k, p = 50), and BLAS takes either layout.
     # The extra last column holds 1 (or sqrt(w)), so one symmetric product yields the
@@ -363,6 +358,45 @@ def _comoments(
             b[:, :q] *= root[:, None]
             b[:, q] = root
         gram += b.T @ b
+        # A NaN or an infinity in a column makes its diagonal entry NaN or infinite.
+        if optimistic and not np.isfinite(np.diagonal(gram)).all():
+            raise _NotFinite
+    return total, mean, gram
+
+
+def _comoments(
+    columns: Sequence[np.ndarray],
+    w: np.ndarray | None,
+    keep: np.ndarray | None = None,
+    *,
+    optimistic: bool = False,
+) -> tuple[float, np.ndarray, np.ndarray]:
+    """Weighted total, mean and centred co-moments of equal-length columns.
+
+    Rows where ``keep`` is False are left out. Row blocks are gathered from the columns,
+    centred by a shift, and multiplied; the residual sums then correct the mean and the
+    co-moments (the corrected two-pass algorithm of Chan, Golub & LeVeque 1983), so a column
+    whose mean is large against its spread keeps its digits. Raw sums of squares never appear,
+    and no copy of the whole table is made: memory beyond the columns is one block.
+
+    The shift is the mean from a first pass over the columns, or, when ``optimistic`` (no
+    weights, every row kept, the values not yet checked), the mean of the first row block:
+    then the rows are read once, and a value that is not finite raises :class:`_NotFinite` at
+    the end of the block that holds it, for the caller to check the columns and start again.
+    """
+    q = len(columns)
+    if keep is not None and keep.all():
+        keep = None
+    if keep is not None:
+        columns = [c[keep] for c in columns]
+        w = None if w is None else w[keep]
+    n = columns[0].shape[0] if q else 0
+    step = max(1, _BLOCK_BYTES // (8 * (q + 1)))
+    optimistic = optimistic and w is None
+    # Unchecked values may hold NaN or infinities; _gram finds them, so numpy's
+    # floating-point warnings would only be noise.
+    with np.errstate(invalid="ignore", over="ignore") if optimistic else contextlib.nullcontext():
+        total, mean, gram = _gram(columns, w, n, step, optimistic)
     com = gram[:q, :q]
     resid = gram[:q, q].copy()
     com -= np.outer(resid, resid) / total
@@ -575,13 +609,11 @@ def _check_terms(
 # From rows
 
 
-def _column_array(values: object, pointer: str) -> tuple[np.ndarray, float | None]:
-    """The column as a float array, and its sum when it is complete (no missing value).
+def _column_array(values: object, pointer: str, *, check: bool = True) -> tuple[np.ndarray, bool]:
+    """The column as a float array, and whether it is complete (no missing value).
 
-    The sum doubles as the completeness check: it is finite only when every value is, so the
-    common case reads the column once and the mean comes for free. A finite column whose sum
-    overflows is complete too (its infinite sum is returned, as ``np.mean`` would give); None
-    is returned only for a column with a missing value.
+    With ``check`` False the values are not looked at (one pass fewer) and the column is taken
+    as complete: the caller must then find out otherwise (see :func:`_comoments`).
     """
     try:
         a = np.asarray(values, dtype=float)
@@ -589,15 +621,14 @@ def _column_array(values: object, pointer: str) -> tuple[np.ndarray, float | Non
         raise InputError.at(pointer, "values must be numbers or null") from None
     if a.ndim != 1:
         raise InputError.at(pointer, "a column must be a flat list of numbers")
-    total = np.add.reduce(a) if a.size else 0.0
-    if np.isfinite(total) or np.isfinite(a).all():
-        return a, float(total)
+    if not check or np.isfinite(a).all():  # one pass for the common case
+        return a, True
     if np.isinf(a).any():
         row = int(np.flatnonzero(np.isinf(a))[0])
         raise InputError.at(
             pointer, f"values must be finite; row {row} is infinite (null marks a missing value)"
         )
-    return a, None
+    return a, False
 
 
 def from_table(
@@ -637,7 +668,35 @@ def from_table(
     ------
     InputError, MissingValuesError, MatrixError, TooFewDataError, OptionError
         With the offending column named (pointer ``/columns/<name>``).
+
+    Notes
+    -----
+    Implementation: without weights the values are first taken as complete and read once, by
+    the summary itself (:func:`_comoments`); only when a value turns out to be missing or
+    infinite are the columns checked one by one and the summary made again the checked way,
+    so a complete table costs one pass over its rows instead of two.
     """
+    if weights is None:
+        try:
+            return _from_table(
+                columns, categorical, response, weights, missing, repair, optimistic=True
+            )
+        except _NotFinite:
+            pass
+    return _from_table(columns, categorical, response, weights, missing, repair, optimistic=False)
+
+
+def _from_table(
+    columns: Mapping[str, object],
+    categorical: Mapping[str, Sequence[str | None]] | None,
+    response: str | None,
+    weights: str | None,
+    missing: str,
+    repair: str,
+    *,
+    optimistic: bool,
+) -> Summary:
+    """:func:`from_table`; ``optimistic``: values not checked, :class:`_NotFinite` if needed."""
     _check_policy(missing, MISSING_POLICIES, "/missing")
     _check_policy(repair, REPAIR_POLICIES, "/repair")
     categorical = dict(categorical or {})
@@ -659,13 +718,10 @@ def from_table(
 
     arrays: dict[str, np.ndarray] = {}
     incomplete: set[str] = set()
-    sums: dict[str, float] = {}
     for name, v in columns.items():
-        arrays[name], total = _column_array(v, f"/columns/{esc(name)}")
-        if total is None:
+        arrays[name], complete = _column_array(v, f"/columns/{esc(name)}", check=not optimistic)
+        if not complete:
             incomplete.add(name)
-        else:
-            sums[name] = total
     labels = {}
     for name, v in categorical.items():
         vals = list(v)
@@ -697,6 +753,8 @@ def from_table(
     if problems:
         raise MissingValuesError(problems[0].reason, problems)
     counts = {name: int(m.sum()) for name, m in miss.items() if m.any()}
+    if counts and optimistic:
+        raise _NotFinite  # a missing label: every column's count belongs in the answer
     notes: list[Notice] = []
     keep = np.ones(n_rows, dtype=bool)
     if counts and missing == "reject":
@@ -782,10 +840,7 @@ def from_table(
         wk = None if w is None else w[keep]
         return _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
 
-    known = [sums.get(name) for name, _, _ in predictors]
-    known += [sums.get(response)] if response is not None else []
-    col_sums = None if None in known else [float(t) for t in known if t is not None]
-    total, mean, com = _comoments(design, w, keep, col_sums)
+    total, mean, com = _comoments(design, w, keep, optimistic=optimistic)
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     return Summary(
         names=names,
