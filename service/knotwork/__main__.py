@@ -72,13 +72,13 @@ def _prepare_process(settings: Settings) -> None:
 
 def worker_app() -> Any:
     """Application factory for server worker processes (settings read again from the env)."""
-    from knotwork._uvicorn import HeadLimitedH11Protocol
+    from knotwork._uvicorn import GuardedH11Protocol
     from knotwork.api import create_app
 
     settings = Settings.from_env()
     _prepare_process(settings)
     # Each worker process sets its own (the class is per process); granian ignores it.
-    HeadLimitedH11Protocol.head_timeout_s = settings.request_timeout_s
+    GuardedH11Protocol.head_timeout_s = settings.request_timeout_s
     return create_app(settings)
 
 
@@ -148,7 +148,7 @@ _MAX_HEAD_BYTES = 64 * 1024
 def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
     import uvicorn
 
-    from knotwork._uvicorn import HeadLimitedH11Protocol
+    from knotwork._uvicorn import GuardedH11Protocol
 
     common: dict[str, Any] = {
         "host": host,
@@ -159,8 +159,9 @@ def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
         "timeout_graceful_shutdown": max(5, int(settings.request_timeout_s) + 5),
         # h11 bounds a request head (httptools buffers one of any size): a header flood gets
         # a 400 at 64 KiB. Small-request rates measured the same on both parsers here. The
-        # subclass adds a time limit per head (uvicorn has none): see knotwork._uvicorn.
-        "http": HeadLimitedH11Protocol,
+        # subclass adds a time limit per head (uvicorn has none) and answers problem+json
+        # where uvicorn answers plain text: see knotwork._uvicorn.
+        "http": GuardedH11Protocol,
         "h11_max_incomplete_event_size": _MAX_HEAD_BYTES,
     }
     if workers == 1:

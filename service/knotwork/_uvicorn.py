@@ -1,4 +1,4 @@
-"""uvicorn's h11 protocol with a time limit on every request head.
+"""uvicorn's h11 protocol with a time limit on every request head, and problem+json answers.
 
 uvicorn limits nothing but the silence between requests on a kept-alive connection: a client
 that opens a connection and sends nothing, or trickles header lines one at a time, holds the
@@ -7,6 +7,10 @@ time limit, counted from the connection's opening or, on a kept-alive connection
 first byte of the next head; a head still incomplete then is answered 408 (problem+json) and
 the connection is closed. Once a head is complete the request's own limits apply (the body's
 read time limit, the computation's time limit).
+
+A head that cannot be parsed (malformed, or over h11's size limit) gets a problem+json 400
+too, where uvicorn would answer in plain text: every answer of the service is a problem
+document, even those given before the application sees the request.
 
 ``python -m knotwork`` selects this protocol for uvicorn; the limit is the request time limit
 (``KNOTWORK_REQUEST_TIMEOUT_S``), set when the worker builds its application.
@@ -17,15 +21,23 @@ from __future__ import annotations
 import asyncio
 import json
 
+import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
-__all__ = ["HeadLimitedH11Protocol"]
+__all__ = ["GuardedH11Protocol"]
 
-_PROBLEM_TYPE = "https://knotwork.example/problems/head-timeout"
+_PROBLEMS = "https://knotwork.example/problems/"
 
 
-class HeadLimitedH11Protocol(H11Protocol):
-    """:class:`uvicorn.protocols.http.h11_impl.H11Protocol` with a time limit per request head.
+def _problem(status: int, title: str, kind: str, detail: str) -> bytes:
+    return json.dumps(
+        {"type": _PROBLEMS + kind, "title": title, "status": status, "detail": detail}
+    ).encode()
+
+
+class GuardedH11Protocol(H11Protocol):
+    """:class:`uvicorn.protocols.http.h11_impl.H11Protocol` with a time limit per request head
+    and problem+json answers for heads it cannot read.
 
     Attributes
     ----------
@@ -68,17 +80,13 @@ class HeadLimitedH11Protocol(H11Protocol):
         if not waiting or self.transport.is_closing():
             return
         # h11 cannot answer a request it has not parsed, so the answer is written as bytes.
-        body = json.dumps(
-            {
-                "type": _PROBLEM_TYPE,
-                "title": "Request Timeout",
-                "status": 408,
-                "detail": (
-                    f"the request head did not arrive within {self.head_timeout_s:g} s; send "
-                    "the request line and headers at once"
-                ),
-            }
-        ).encode()
+        body = _problem(
+            408,
+            "Request Timeout",
+            "head-timeout",
+            f"the request head did not arrive within {self.head_timeout_s:g} s; send the "
+            "request line and headers at once",
+        )
         head = (
             "HTTP/1.1 408 Request Timeout\r\n"
             "content-type: application/problem+json\r\n"
@@ -86,4 +94,26 @@ class HeadLimitedH11Protocol(H11Protocol):
             "connection: close\r\n\r\n"
         ).encode()
         self.transport.write(head + body)
+        self.transport.close()
+
+    def send_400_response(self, msg: str) -> None:
+        """The answer to a head h11 cannot parse, as a problem document (uvicorn: plain text)."""
+        self._cancel_head_timer()
+        limit = self.config.h11_max_incomplete_event_size
+        size = f" or larger than {limit // 1024} KiB" if limit else ""
+        body = _problem(
+            400,
+            "Bad Request",
+            "malformed-head",
+            f"the request line or headers cannot be read: not valid HTTP/1.1{size}",
+        )
+        headers = [
+            (b"content-type", b"application/problem+json"),
+            (b"content-length", str(len(body)).encode()),
+            (b"connection", b"close"),
+        ]
+        event = h11.Response(status_code=400, headers=headers, reason=b"Bad Request")
+        self.transport.write(self.conn.send(event) or b"")
+        self.transport.write(self.conn.send(h11.Data(data=body)) or b"")
+        self.transport.write(self.conn.send(h11.EndOfMessage()) or b"")
         self.transport.close()

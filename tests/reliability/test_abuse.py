@@ -479,5 +479,30 @@ def test_header_floods_are_refused_in_bounded_memory(server: Server, flood: str)
     # Refused: an error status (400 or 431) or the connection closed; never served.
     assert answer.status != 200, answer.head[:200]
     assert answer.status is None or answer.status in (400, 413, 414, 431)
+    if answer.status == 400:  # from the server layer, but a problem document all the same
+        assert problem_of(answer)["type"] == PROBLEM + "malformed-head"
     cost.within(64 * 1024)  # a head of 64 KiB is as much as a server needs to hold
+    still_serves(server)
+
+
+@pytest.mark.parametrize(
+    ("head", "rest"),
+    [
+        (b"NOT A REQUEST LINE\r\n\r\n", []),
+        (b"GET /healthz HTTP/1.1\r\nHost: x\r\nno colon here\r\n\r\n", []),
+        # h11 refuses a head once more than 64 KiB of it wait unfinished (a head that arrives
+        # whole in one read is parsed at once: the bound is 64 KiB plus one read).
+        (b"GET /healthz HTTP/1.1\r\nHost: x\r\nX-Big: ", [b"v" * 16384] * 8),
+    ],
+    ids=["garbage request line", "header without a colon", "a header growing past 64 KiB"],
+)
+def test_unreadable_heads_get_a_problem_document(
+    server: Server, head: bytes, rest: list[bytes]
+) -> None:
+    answer = raw_exchange(_port(server), head, rest, pause=0.02, timeout=10)
+    assert answer.status == 400
+    assert (answer.header("content-type") or "").startswith("application/problem+json")
+    doc = problem_of(answer)
+    assert doc["type"] == PROBLEM + "malformed-head"
+    assert "64 KiB" in doc["detail"]
     still_serves(server)

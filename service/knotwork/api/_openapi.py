@@ -188,7 +188,9 @@ def _problem(description: str, *examples: Example) -> ResponseSpec:
 _TRUNCATED = "the body is not valid JSON: Input data was truncated"
 _COMMON_RESPONSES = {
     400: _problem(
-        "The body does not parse, or does not fit the request schema.",
+        "The body does not parse, or does not fit the request schema (a request line or "
+        "headers that cannot be read are answered 400 malformed-head by the server layer, on "
+        "every route).",
         _problem_example(400, "malformed-body", _TRUNCATED, "", _TRUNCATED),
         _problem_example(400, "invalid-request", "Expected `float | null`, got `str`",
                          "/input/columns/rainfall_mm/3", "Expected `float | null`, got `str`"),
