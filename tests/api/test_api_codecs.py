@@ -71,32 +71,6 @@ def test_json_table_becomes_float_arrays_with_nan_for_null() -> None:
     assert prepared.options == AssessOptions()
 
 
-def test_width_counts_the_predictors_the_core_will_see() -> None:
-    # Two numeric predictors (the response and the weights are not), and a categorical with
-    # three levels (two indicators; a missing label is not a level).
-    body = (
-        b'{"input": {"kind": "table", "columns": {"a": [1, 2, 3, 4], "b": [2, 1, 4, 3],'
-        b' "y": [1, 1, 2, 2], "w": [1, 1, 1, 2]}, "categorical": {"g": ["x", "y", null, "z"]},'
-        b' "response": "y", "weights": "w"}}'
-    )
-    table = decode_assess(body, Limits())
-    assert table.width == 4
-    assert table.cells == 4 * 5
-    correlation = decode_assess(
-        b'{"input": {"kind": "correlation", "names": ["a", "b"], "matrix": [[1, 0.5], [0.5, 1]],'
-        b' "n": 10}}',
-        Limits(),
-    )
-    assert (correlation.width, correlation.cells) == (2, 2 * 3)
-    parts = decode_assess(
-        b'{"input": {"kind": "moments", "names": ["a", "b"], "parts": ['
-        b'{"n": 5, "means": [0, 0], "covariance": [[1, 0], [0, 1]]},'
-        b'{"n": 5, "means": [1, 1], "covariance": [[1, 0], [0, 1]]}]}}',
-        Limits(),
-    )
-    assert (parts.width, parts.cells) == (2, 2 * 2 * 3)
-
-
 def test_batch_items_are_split_raw_and_decoded_one_by_one() -> None:
     items = decode_batch(b'{"items": [{"input": {"kind": "rows"}}, {"x": 1}]}', Limits())
     assert len(items) == 2

@@ -127,38 +127,6 @@ def test_json_arrow_and_parquet_give_the_same_answer(client: Any) -> None:
         assert response.json() == expected, media
 
 
-def test_small_json_work_runs_on_the_loop_and_the_rest_on_a_thread(
-    client: Any, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    # Same answers either way (the test above compares JSON with Arrow); here: where they ran.
-    from knotwork.api._work import WorkPool
-
-    ran: list[str] = []
-    here, there = WorkPool.run_here, WorkPool.run
-
-    def run_here(self: WorkPool, *args: Any, **kwargs: Any) -> Any:
-        ran.append("loop")
-        return here(self, *args, **kwargs)
-
-    async def run(self: WorkPool, *args: Any, **kwargs: Any) -> Any:
-        ran.append("thread")
-        return await there(self, *args, **kwargs)
-
-    monkeypatch.setattr(WorkPool, "run_here", run_here)
-    monkeypatch.setattr(WorkPool, "run", run)
-    assert post(client, CORRELATION_EXAMPLE).status_code == 200
-    rng = np.random.default_rng(11)
-    wide = {f"x{j}": rng.normal(size=30).round(3).tolist() for j in range(25)}  # p = 25 > 24
-    body = {"input": {"kind": "table", "columns": wide}, "options": {"sections": ["variables"]}}
-    assert post(client, body).status_code == 200
-    table = arrow_table(TABLE_COLUMNS)
-    response = client.post(
-        "/v1/assess", content=arrow_stream(table), headers={"Content-Type": ARROW}
-    )
-    assert response.status_code == 200, response.text
-    assert ran == ["loop", "thread", "thread"]
-
-
 def test_dictionary_encoded_levels_equal_plain_strings(client: Any) -> None:
     import pyarrow as pa
 

@@ -106,19 +106,3 @@ async def test_errors_of_the_work_reach_the_caller() -> None:
     with pytest.raises(ValueError, match="bad input"):
         await pool.run(fail)
     assert pool.in_flight == 0
-
-
-async def test_small_work_runs_here_and_gives_its_place_back() -> None:
-    pool = WorkPool(concurrency=1, queue=0, timeout_s=5)
-    ticket = pool.admit()
-    value, queue_s, compute_s = pool.run_here(threading.get_ident, ticket=ticket)
-    assert value == threading.get_ident() and queue_s == 0.0 and compute_s >= 0.0
-    assert pool.in_flight == 0
-
-    def fail() -> None:
-        raise ValueError("bad input")
-
-    ticket = pool.admit()
-    with pytest.raises(ValueError, match="bad input"):
-        pool.run_here(fail, ticket=ticket)
-    assert pool.in_flight == 0

@@ -1,4 +1,4 @@
-"""Route handlers: read the body, decode and compute (off the event loop unless small), answer.
+"""Route handlers: read the body, decode and compute off the event loop, answer.
 
 Handlers do no numerics and no validation of their own: the codecs decode, the core computes,
 :mod:`._problems` turns every failure into problem+json.
@@ -24,7 +24,6 @@ from knotwork.codecs import (
     InvalidRequest,
     Limits,
     Origin,
-    Prepared,
     UnsupportedMediaType,
     decode_assess,
     decode_batch,
@@ -113,44 +112,15 @@ def _record(route: str, queue_s: float, compute_s: float, **fields: str | int) -
         info.fields.update(fields)
 
 
-#: Small work runs on the event loop (see :meth:`WorkPool.run_here`): a JSON body up to this
-#: size is decoded there (tens of microseconds), and computed there when it is also narrow.
-_HERE_BODY_BYTES = 16 * 1024
-#: At most this many predictors: every section then takes a few milliseconds (p = 24 with a
-#: response: about 6 ms here), a pause the other requests on the loop do not feel.
-_HERE_MAX_WIDTH = 24
-
-
-def _run_prepared(prepared: Prepared) -> Assessment:
-    try:
-        return run(prepared)
-    except KnotworkError as exc:
-        raise Located(exc, prepared.origin) from None
-
-
 def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> Assessment:
     if media == JSON:
         prepared = decode_assess(body, limits)
     else:
         prepared = decode_table_body(body, media, query, limits)
-    return _run_prepared(prepared)
-
-
-async def _compute(
-    pool: WorkPool, body: bytearray, media: str, query: bytes, limits: Limits, ticket: object
-) -> tuple[Assessment, float, float]:
-    """Small JSON work on the loop, everything else on a worker thread; the place is given back
-    either way."""
-    if media != JSON or len(body) > _HERE_BODY_BYTES:
-        return await pool.run(_assess_one, body, media, query, limits, ticket=ticket)
     try:
-        prepared = decode_assess(body, limits)
-    except BaseException:
-        pool.release(ticket)
-        raise
-    if prepared.width <= _HERE_MAX_WIDTH:
-        return pool.run_here(_run_prepared, prepared, ticket=ticket)
-    return await pool.run(_run_prepared, prepared, ticket=ticket)
+        return run(prepared)
+    except KnotworkError as exc:
+        raise Located(exc, prepared.origin) from None
 
 
 def _assess_many(
@@ -219,7 +189,9 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
         raise InvalidRequest(reason, [Fault("/query", reason)])
     pool: WorkPool = state.pool
     body, ticket = await _admitted_body(request, pool)
-    result, queue_s, compute_s = await _compute(pool, body, media, query, state.limits, ticket)
+    result, queue_s, compute_s = await pool.run(
+        _assess_one, body, media, query, state.limits, ticket=ticket
+    )
     _record("/v1/assess", queue_s, compute_s, encoding=media)
     return result
 

@@ -1,9 +1,7 @@
 """Admission control, off-loop computation, time limits and body reading.
 
 CPU work (decoding and the core) runs in worker threads: numpy's linear algebra releases the
-GIL, so ``concurrency`` threads compute in parallel while the event loop keeps answering. Work
-of a few milliseconds (a narrow design in a small JSON body) runs on the loop instead
-(:meth:`WorkPool.run_here`), where it costs half as much. Two
+GIL, so ``concurrency`` threads compute in parallel while the event loop keeps answering. Two
 limiters bound the work: ``running`` (the slots) and ``admitted`` (slots plus a short queue).
 A request that finds ``admitted`` full is refused at once with 503 and ``Retry-After``; one
 that outlives the time limit gets 503 too, but keeps its slot until its thread has really
@@ -169,25 +167,6 @@ class WorkPool:
         except Expired:  # pragma: no cover - only when the time-out raced the start
             raise self._too_slow(limit) from None
         return result, spans["queue"], spans["compute"]
-
-    def run_here(self, fn: Callable[..., T], *args: Any, ticket: object) -> tuple[T, float, float]:
-        """Run small work at once on the calling thread (the event loop), on ``ticket``'s place.
-
-        For work of a few milliseconds this is about twice as fast as :meth:`run`: at those
-        sizes the core is Python-bound, so a worker thread adds a hand-off and a contest for
-        the GIL with the event loop, and no parallelism. The caller decides what is small;
-        such work cannot outlive the time limit, so none is set.
-
-        Returns
-        -------
-        result, queue_s, compute_s
-            As for :meth:`run`; ``queue_s`` is 0.
-        """
-        started = time.perf_counter()
-        try:
-            return fn(*args), 0.0, time.perf_counter() - started
-        finally:
-            self.release(ticket)
 
     def _forget(self, task: asyncio.Task[Any]) -> None:
         self._tasks.discard(task)

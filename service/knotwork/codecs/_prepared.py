@@ -115,33 +115,3 @@ class Prepared:
         if isinstance(self.data, TableData):
             return "table"
         return "correlation" if isinstance(self.data, CorrelationData) else "moments"
-
-    @property
-    def width(self) -> int:
-        """How many predictor columns the core will see, a categorical counted by its indicators.
-
-        This sets the cost of every step that grows as p^3 (removal, ridge, components); the
-        service uses it to tell small work from large before computing.
-        """
-        data = self.data
-        if isinstance(data, TableData):
-            numeric = len(data.columns) - (data.response is not None) - (data.weights is not None)
-            indicators = sum(
-                max(0, len({s for s in labels if s is not None}) - 1)
-                for labels in data.categorical.values()
-            )
-            return max(0, numeric) + indicators
-        return len(data.names)
-
-    @property
-    def cells(self) -> int:
-        """How many numbers the core reads: rows times columns of a table, the matrices of a
-        summary (every part of a moments input)."""
-        data = self.data
-        if isinstance(data, TableData):
-            lengths = [len(c) for c in data.columns.values()]
-            lengths += [len(c) for c in data.categorical.values()]
-            return max(lengths, default=0) * (len(data.columns) + len(data.categorical))
-        p = len(data.names)
-        parts = len(data.parts) if isinstance(data, MomentsData) and data.parts else 1
-        return parts * p * (p + 1)
