@@ -24,14 +24,14 @@ import json
 import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
-__all__ = ["GuardedH11Protocol"]
+from knotwork.api._problems import PROBLEM_BASE
 
-_PROBLEMS = "https://knotwork.example/problems/"
+__all__ = ["GuardedH11Protocol"]
 
 
 def _problem(status: int, title: str, kind: str, detail: str) -> bytes:
     return json.dumps(
-        {"type": _PROBLEMS + kind, "title": title, "status": status, "detail": detail}
+        {"type": PROBLEM_BASE + kind, "title": title, "status": status, "detail": detail}
     ).encode()
 
 
