@@ -19,20 +19,13 @@ document, even those given before the application sees the request.
 from __future__ import annotations
 
 import asyncio
-import json
 
 import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
-from knotwork.api._problems import PROBLEM_BASE
+from knotwork.api._problems import PROBLEM_MEDIA_TYPE, problem_bytes
 
 __all__ = ["GuardedH11Protocol"]
-
-
-def _problem(status: int, title: str, kind: str, detail: str) -> bytes:
-    return json.dumps(
-        {"type": PROBLEM_BASE + kind, "title": title, "status": status, "detail": detail}
-    ).encode()
 
 
 class GuardedH11Protocol(H11Protocol):
@@ -80,16 +73,15 @@ class GuardedH11Protocol(H11Protocol):
         if not waiting or self.transport.is_closing():
             return
         # h11 cannot answer a request it has not parsed, so the answer is written as bytes.
-        body = _problem(
+        body = problem_bytes(
             408,
-            "Request Timeout",
             "head-timeout",
             f"the request head did not arrive within {self.head_timeout_s:g} s; send the "
             "request line and headers at once",
         )
         head = (
             "HTTP/1.1 408 Request Timeout\r\n"
-            "content-type: application/problem+json\r\n"
+            f"content-type: {PROBLEM_MEDIA_TYPE}\r\n"
             f"content-length: {len(body)}\r\n"
             "connection: close\r\n\r\n"
         ).encode()
@@ -101,14 +93,13 @@ class GuardedH11Protocol(H11Protocol):
         self._cancel_head_timer()
         limit = self.config.h11_max_incomplete_event_size
         size = f" or larger than {limit // 1024} KiB" if limit else ""
-        body = _problem(
+        body = problem_bytes(
             400,
-            "Bad Request",
             "malformed-head",
             f"the request line or headers cannot be read: not valid HTTP/1.1{size}",
         )
         headers = [
-            (b"content-type", b"application/problem+json"),
+            (b"content-type", PROBLEM_MEDIA_TYPE.encode()),
             (b"content-length", str(len(body)).encode()),
             (b"connection", b"close"),
         ]

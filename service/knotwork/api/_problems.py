@@ -38,6 +38,7 @@ __all__ = [
     "ProblemDocument",
     "ProblemError",
     "handle_exception",
+    "problem_bytes",
     "problem_of",
 ]
 
@@ -62,6 +63,8 @@ TITLES: Mapping[str, str] = {
     "method-not-allowed": "Method not allowed on this resource",
     "body-too-large": "The body is larger than allowed",
     "body-timeout": "The body did not arrive in time",
+    "head-timeout": "The request head did not arrive in time",
+    "malformed-head": "The request line or headers could not be read",
     "too-many-cells": "The input has more numbers than allowed",
     "too-many-columns": "The input has more columns than allowed",
     "too-many-items": "The batch has more items than allowed",
@@ -167,6 +170,12 @@ def _document(status: int, kind: str, detail: str, errors: list[ProblemError]) -
         errors=errors,
         request_id=current_request_id(),
     )
+
+
+def problem_bytes(status: int, kind: str, detail: str) -> bytes:
+    """A problem document as JSON bytes, for answers written below the application (the
+    server layer's answers to request heads it cannot use)."""
+    return msgspec.json.encode(_document(status, kind, detail, []))
 
 
 def _core_error_types() -> tuple[type[Exception], ...]:
