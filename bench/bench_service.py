@@ -101,7 +101,13 @@ class Server:
         target = "bench_service:bare_app"
         if kind == "plain":
             target = "bench_service:plain_litestar_app"
-        if kind in ("bare", "plain") and server == "uvicorn":
+        elif kind == "knotwork":
+            # The service starts only on uvicorn; granian runs its worker factory here, for
+            # comparison only (without the request-head guards of knotwork._uvicorn).
+            target = "knotwork.__main__:worker_app"
+        if kind == "knotwork" and server == "uvicorn":
+            command = [sys.executable, "-m", "knotwork", "--host", HOST, "--port", str(self.port)]
+        elif server == "uvicorn":
             command = [
                 sys.executable,
                 "-m",
@@ -124,7 +130,7 @@ class Server:
                 sys.executable,
                 "-m",
                 "granian",
-                *(["--factory"] if kind == "plain" else []),
+                *(["--factory"] if kind in ("plain", "knotwork") else []),
                 "--interface",
                 "asgi",
                 "--host",
@@ -135,9 +141,6 @@ class Server:
                 "warning",
                 target,
             ]
-        else:
-            command = [sys.executable, "-m", "knotwork", "--host", HOST, "--port", str(self.port),
-                       "--server", server]  # fmt: skip
         self.process = subprocess.Popen(
             command, env=environment, cwd=HERE, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL
         )

@@ -4,12 +4,10 @@ Settings come from the ``KNOTWORK_*`` environment variables (see :mod:`knotwork.
 checked before anything starts. Without tokens the service runs open only on a loopback
 address; on any other address it refuses to start unless ``KNOTWORK_ALLOW_OPEN=true``.
 
-The default server is uvicorn (h11 parser, which bounds request heads, with a time limit per
-head added by :mod:`knotwork._uvicorn`, and uvloop);
-``--server granian`` is the alternative. ``bench/bench_service.py`` measures both side by
-side: granian moves a bare 40 MB body faster, but the full Arrow request was no faster on it
-(uvicorn 0.9-1.1 x floor + compute, granian 1.2-1.9 x) and small requests ran at the same
-rate, so uvicorn stays the default.
+The server is uvicorn (h11 parser, which bounds request heads, with a time limit per head and
+problem+json answers for heads it cannot read added by :mod:`knotwork._uvicorn`, and uvloop).
+There is one way to start the service, so those answers never depend on which server runs;
+``bench/bench_service.py`` still compares other servers side by side.
 """
 
 from __future__ import annotations
@@ -26,8 +24,6 @@ from typing import Any
 from knotwork.settings import Settings, SettingsError
 
 __all__ = ["curl_line", "is_loopback", "main", "worker_app"]
-
-_SERVERS = ("uvicorn", "granian")
 
 
 def is_loopback(host: str) -> bool:
@@ -77,7 +73,7 @@ def worker_app() -> Any:
 
     settings = Settings.from_env()
     _prepare_process(settings)
-    # Each worker process sets its own (the class is per process); granian ignores it.
+    # Each worker process sets its own (the class attribute is per process).
     GuardedH11Protocol.head_timeout_s = settings.request_timeout_s
     return create_app(settings)
 
@@ -88,9 +84,6 @@ def _parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
     parser.add_argument("--port", type=int, default=8000, help="port (default 8000)")
-    parser.add_argument(
-        "--server", choices=_SERVERS, default="uvicorn", help="ASGI server (default uvicorn)"
-    )
     parser.add_argument(
         "--workers", type=int, default=None, help="processes (default KNOTWORK_WORKERS, or 1)"
     )
@@ -127,14 +120,12 @@ def main(argv: list[str] | None = None) -> int:
         os.environ["PROMETHEUS_MULTIPROC_DIR"] = metrics_dir
 
     print(
-        f"knotwork: serving on http://{args.host}:{args.port} ({args.server}, {workers} "
+        f"knotwork: serving on http://{args.host}:{args.port} ({workers} "
         f"worker(s), {'open: no token needed' if settings.open else 'bearer tokens required'})."
         f"\nTry:\n  {curl_line(args.host, args.port, token_needed=not settings.open)}",
         flush=True,
     )
     try:
-        if args.server == "granian":
-            return _run_granian(args.host, args.port, workers)
         return _run_uvicorn(settings, args.host, args.port, workers)
     finally:
         if metrics_dir is not None:
@@ -169,22 +160,6 @@ def _run_uvicorn(settings: Settings, host: str, port: int, workers: int) -> int:
         uvicorn.run(app, **common)
     else:
         uvicorn.run("knotwork.__main__:worker_app", factory=True, workers=workers, **common)
-    return 0
-
-
-def _run_granian(host: str, port: int, workers: int) -> int:
-    from granian import Granian
-    from granian.constants import Interfaces
-
-    Granian(
-        "knotwork.__main__:worker_app",
-        factory=True,
-        address=host,
-        port=port,
-        interface=Interfaces.ASGI,
-        workers=workers,
-        log_access=False,
-    ).serve()
     return 0
 
 

@@ -55,7 +55,7 @@ def configure_logging(level: str = "info") -> None:
         root.removeHandler(existing)
     root.addHandler(handler)
     root.setLevel(level.upper())
-    for name in ("uvicorn", "uvicorn.error", "granian", "_granian"):
+    for name in ("uvicorn", "uvicorn.error"):
         logger = logging.getLogger(name)
         logger.handlers.clear()
         logger.propagate = True
