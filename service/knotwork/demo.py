@@ -86,8 +86,8 @@ def render(a: Assessment) -> str:
         )
     for t in a.terms:
         lines.append(
-            f"term {t.name:<17}GVIF {_fmt(t.gvif).strip()} on {t.df} df, "
-            f"GVIF^(1/2df) {_fmt(t.gvif_scaled).strip()}"
+            f"term {t.name} ({t.df} columns): GVIF {_fmt(t.gvif).strip()}, "
+            f"scaled {_fmt(t.gvif_scaled).strip()}, compare with {math.sqrt(a.threshold):.3f}"
         )
     c = a.conditioning
     if c is not None:

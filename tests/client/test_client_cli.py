@@ -218,7 +218,7 @@ def test_breach_rule_for_terms_and_aliased_columns():
             }
         ],
     }
-    # Columns of a multi-column term are judged by GVIF^(1/(2 df)) against sqrt(threshold).
+    # Columns of a multi-column term are judged by their scaled GVIF against sqrt(threshold).
     assert breaches(doc, 5.0) == ["b"]
     assert breaches(doc, 1.5) == ["r", "b"]
 

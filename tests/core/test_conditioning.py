@@ -10,7 +10,7 @@ from statsmodels.datasets import longley
 from knotwork.core._conditioning import condition_diagnostics
 from knotwork.core._dependencies import Spectrum
 
-INTERCEPT = "(intercept)"
+INTERCEPT = "<constant>"
 
 
 @pytest.fixture(scope="module")

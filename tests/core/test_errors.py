@@ -37,6 +37,32 @@ def corr(names=("a", "b", "c"), matrix=R3, n=50, **kw):
 
 CASES = [
     # (build, exception class, pointer, message fragment)
+    # The intercept's label is reserved, so a label never names two columns.
+    (
+        lambda: table(columns={"a": A, "<constant>": B, "c": C}),
+        InputError,
+        "/columns/<constant>",
+        "the name '<constant>' is reserved for the intercept in the diagnostics; rename this "
+        "variable",
+    ),
+    (
+        lambda: table(columns={"a": A, "c": C}, categorical={"<constant>": list("xyxyx")}),
+        InputError,
+        "/categorical/<constant>",
+        "the name '<constant>' is reserved for the intercept",
+    ),
+    (
+        lambda: corr(names=("a", "<constant>", "c")),
+        InputError,
+        "/names/1",
+        "the name '<constant>' is reserved for the intercept",
+    ),
+    (
+        lambda: assess(from_moments(["<constant>", "b"], 10, [0, 0], [[1, 0.1], [0.1, 1]])),
+        InputError,
+        "/names/0",
+        "the name '<constant>' is reserved for the intercept",
+    ),
     (
         lambda: table(columns={"a": A}),
         TooFewDataError,

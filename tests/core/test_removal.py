@@ -41,7 +41,7 @@ def unit_list(p, terms):
 
 
 def scratch_inflation(m, units, active):
-    """VIF (one column) or GVIF^(1/df) (term) of each active unit, from determinants."""
+    """VIF (one column) or squared scaled GVIF (term) of each active unit, from determinants."""
     cols = [c for u in active for c in units[u][1]]
     sub = m[np.ix_(cols, cols)]
     inv = np.linalg.inv(sub)

@@ -47,7 +47,7 @@ def test_longley_published_choices_and_ridge_vifs(longley):
     )
     assert result.k_scale == "correlation"
     assert result.unit_variance_factor == len(y) - 1
-    assert [c.rule for c in result.choices] == [HKB, LAWLESS_WANG, GCV, VIF_THRESHOLD]
+    assert [c.rule for c in result.choices] == [VIF_THRESHOLD, GCV, HKB, LAWLESS_WANG]
 
 
 @pytest.mark.parametrize("dataset", ["diabetes", "longley"])

@@ -7,7 +7,7 @@ gate on:
 
     0  every model passed the threshold rule
     1  at least one model breaks it (a VIF above the threshold, an aliased column, or a
-       multi-column term with GVIF^(1/(2 df)) above sqrt(threshold))
+       multi-column term whose scaled GVIF is above sqrt(threshold))
     2  the command line or the manifest is wrong (nothing was sent)
     3  at least one model could not be assessed (unreadable file, rejected input, service
        unreachable); reports for the others are still written
@@ -257,7 +257,7 @@ def breaches(doc: dict[str, Any], threshold: float) -> list[str]:
 
     A column counts unless it belongs to a multi-column term; it breaks the rule when it is
     aliased or above the threshold. A multi-column term breaks it when it is aliased or its
-    GVIF^(1/(2 df)) is missing (not finite) or exceeds sqrt(threshold), the comparison of
+    scaled GVIF is missing (not finite) or exceeds sqrt(threshold), the comparison of
     Fox & Monette (1992).
     """
     grouped: set[str] = set()

@@ -92,9 +92,9 @@ class Term(_Record, frozen=True, kw_only=True):
     gvif
         Generalized VIF; None when not finite.
     gvif_scaled
-        GVIF^(1/(2 df)), comparable to sqrt(threshold).
+        Scaled GVIF (GVIF to the power 1/(2 df)), comparable to sqrt(threshold).
     above_threshold
-        Whether GVIF^(1/(2 df)) exceeds sqrt(threshold) (a rule of thumb).
+        Whether the scaled GVIF exceeds sqrt(threshold) (a rule of thumb).
     aliased
         Whether a column of the term is in an exact dependency (GVIF not finite).
     """
@@ -132,7 +132,7 @@ class Conditioning(_Record, frozen=True, kw_only=True):
         Which matrix was decomposed (the scaled design with an uncentred intercept, or the
         correlation matrix); see the service documentation.
     names
-        The columns of that matrix (``(intercept)`` first when it is included).
+        The columns of that matrix (``<constant>`` first when it is included).
     eigenvalues
         Eigenvalues of that matrix, largest first.
     condition_number
@@ -398,7 +398,7 @@ class Assessment(_Record, frozen=True, kw_only=True):
     variables
         Per-predictor inflation diagnostics, in the order of the predictors.
     terms
-        Per multi-column term: GVIF and GVIF^(1/(2 df)).
+        Per multi-column term: GVIF and scaled GVIF.
     conditioning
         Condition indices and proportions (None if not computed).
     tests

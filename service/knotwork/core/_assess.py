@@ -118,7 +118,7 @@ class Assessment:
     variables
         Per predictor: VIF, tolerance, R_j^2, standard-error inflation, flags.
     terms
-        Per multi-column term: GVIF and GVIF^(1/(2 df)).
+        Per multi-column term: GVIF and scaled GVIF.
     conditioning
         Condition indices, variance-decomposition proportions and tangled sets.
     tests

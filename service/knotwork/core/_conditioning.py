@@ -45,7 +45,7 @@ class Conditioning:
         ``"scaled_uncentred"`` (the same without a constant column) or ``"correlation"`` (the
         predictors centred and scaled: the correlation matrix).
     names
-        The columns the proportions refer to, in matrix order; ``"(intercept)"`` comes first
+        The columns the proportions refer to, in matrix order; ``"<constant>"`` comes first
         when the constant column is included.
     eigenvalues
         Eigenvalues of the unit-diagonal cross-product matrix, largest first (the squared
@@ -107,7 +107,7 @@ def condition_diagnostics(
         uncentred, with the constant column first; for ``"scaled_uncentred"`` it is
         :math:`X^\\top W X`; for ``"correlation"`` it is the correlation matrix itself.
     names
-        Column names in matrix order (``"(intercept)"`` first for the intercept basis).
+        Column names in matrix order (``"<constant>"`` first for the intercept basis).
     basis
         One of :data:`BASES`; echoed in the result.
     index_threshold, proportion_threshold
@@ -160,7 +160,7 @@ def condition_diagnostics(
     Verification: tests against ``numpy.linalg.svd`` of the explicitly built scaled design for
     Longley's data (statsmodels.datasets.longley): indices 1, 9.14172, 12.2557, 25.3366,
     230.424, 1048.08, 43275.0 and the proportions, to rtol 1e-6, with the tangled sets
-    {GNPDEFL, POP} and {(intercept), GNP, UNEMP, YEAR}; the centred index 110.544 on the
+    {GNPDEFL, POP} and {<constant>, GNP, UNEMP, YEAR}; the centred index 110.544 on the
     correlation matrix; an exactly singular design.
 
     Implementation: the route through the cross-product squares the condition number, so

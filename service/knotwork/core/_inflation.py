@@ -60,8 +60,9 @@ class TermInflation:
     gvif
         :math:`\\det R_{TT} \\det R_{OO} / \\det R`; None when the term is aliased.
     gvif_scaled
-        :math:`\\mathrm{GVIF}^{1/(2\\,df)}`, comparable across terms of different size; compare it
-        with the square root of the VIF threshold. None when aliased.
+        The scaled GVIF, :math:`\\mathrm{GVIF}^{1/(2\\,df)}` (Fox & Monette 1992), comparable
+        across terms of different size; compare it with the square root of the VIF threshold.
+        None when aliased.
     above_threshold
         Whether ``gvif_scaled`` exceeds the square root of the threshold (True when aliased).
     aliased

@@ -58,9 +58,10 @@ ALIASED = "aliased"
 _RULES = {
     LARGEST_INFLATION: (
         "At each step drop, among the unprotected predictors and terms whose inflation exceeds "
-        "the threshold, the one with the largest inflation: its VIF, or GVIF^(1/df) for a term "
-        "of df columns (the square of GVIF^(1/(2 df)), so comparing it with the threshold is "
-        "comparing GVIF^(1/(2 df)) with sqrt(threshold)). Stop when none is left above it."
+        "the threshold, the one with the largest inflation: its VIF, or for a term of df "
+        "columns the square of its scaled GVIF (GVIF to the power 1/df), so that comparing it "
+        "with the threshold is comparing the scaled GVIF with sqrt(threshold). Stop when none "
+        "is left above it."
     ),
     LEAST_RESPONSE_CORRELATION: (
         "At each step drop, among the unprotected predictors and terms whose inflation exceeds "
@@ -97,7 +98,7 @@ class RemovalStep:
         ``"least_response_correlation"`` (the rule of the sequence chose it).
     vif
         Its inflation at the moment of the drop on the VIF scale: the VIF of a predictor, or
-        GVIF^(1/df) of a term; None when it was aliased (the VIF is then infinite).
+        the squared scaled GVIF of a term; None when it was aliased (the VIF is then infinite).
     gvif
         The generalized VIF of a multi-column term at that moment (None for one column or
         when aliased).
@@ -149,8 +150,8 @@ class StillHigh:
     name
         The predictor or term.
     vif
-        Its inflation (VIF scale: VIF, or GVIF^(1/df) of a term); None when it is still in an
-        exact dependency.
+        Its inflation (VIF scale: VIF, or the squared scaled GVIF of a term); None when it is
+        still in an exact dependency.
     protected
         Whether it is protected (then the sequence could not drop it).
     partner
@@ -905,13 +906,13 @@ def removal_sequence(
     names
         Predictor names in matrix order.
     threshold
-        VIF above which a predictor (or GVIF^(1/df) above which a term) is dropped; a rule of
-        thumb (5 or 10 in common practice), at least 1.
+        VIF above which a predictor (or squared scaled GVIF above which a term) is dropped; a
+        rule of thumb (5 or 10 in common practice), at least 1.
     protect
         Predictors or terms never dropped; naming one column of a term protects the term.
     terms
         Multi-column terms as (name, column indices); they are dropped whole and judged by
-        GVIF^(1/(2 df)) against sqrt(threshold).
+        their scaled GVIF against sqrt(threshold).
     dependencies
         Exact dependencies of ``M`` (from :func:`find_dependencies`); None to find them here.
     r_xy

@@ -89,7 +89,7 @@ class RidgeChoice:
     Attributes
     ----------
     rule
-        ``hoerl_kennard_baldwin``, ``lawless_wang``, ``gcv`` or ``vif_threshold``.
+        ``vif_threshold``, ``gcv``, ``hoerl_kennard_baldwin`` or ``lawless_wang``.
     k
         The chosen k on the correlation scale (None when the rule is not defined here; see
         ``note``).
@@ -138,7 +138,8 @@ class Ridge:
     trace
         The fit at every k of the grid, in grid order.
     choices
-        The four rules, in the order above.
+        The four rules: ``vif_threshold`` (the caller's threshold) first, then ``gcv``,
+        ``hoerl_kennard_baldwin`` and ``lawless_wang``.
     residual_df
         n - p - 1 (n - p without intercept): the degrees of freedom of the OLS residual variance
         s^2 = (1 - R^2) / residual_df used by the Hoerl-Kennard-Baldwin and Lawless-Wang rules.
@@ -568,13 +569,17 @@ def ridge_analysis(
             rule, float(k), mv, float(eig.edf(kk)[0]), r2, b_t, orig, _REFERENCES[rule], note
         )
 
-    choices = []
+    # The caller's own threshold first, then generalised cross-validation, then the two
+    # closed forms in the order they were published.
+    k_vif, note = _smallest_k_under(eig, float(threshold))
+    choices = [choice(VIF_THRESHOLD, k_vif, note)]
     if not have_y:
         none = "needs the response's correlations with the predictors"
-        choices += [choice(HKB, None, none), choice(LAWLESS_WANG, None, none)]
-        choices.append(choice(GCV, None, none))
+        choices += [choice(rule, None, none) for rule in (GCV, HKB, LAWLESS_WANG)]
     else:
         assert eig.c2 is not None
+        k_gcv, gcv_note = _gcv(eig, dof)
+        choices.append(choice(GCV, k_gcv, gcv_note))
         if zero_aliased:
             why = "not defined: an exact dependency leaves the least-squares fit not unique"
             choices += [choice(HKB, None, why), choice(LAWLESS_WANG, None, why)]
@@ -596,10 +601,6 @@ def ridge_analysis(
                 if math.isfinite(k_lw)
                 else choice(LAWLESS_WANG, None, zero)
             )
-        k_gcv, note = _gcv(eig, dof)
-        choices.append(choice(GCV, k_gcv, note))
-    k_vif, note = _smallest_k_under(eig, float(threshold))
-    choices.append(choice(VIF_THRESHOLD, k_vif, note))
     return Ridge(
         k_scale=K_SCALE,
         unit_variance_factor=dof,

@@ -43,7 +43,9 @@ _CONSTANT_RTOL = 1e-13
 
 MISSING_POLICIES = ("reject", "drop_rows", "pairwise")
 REPAIR_POLICIES = ("reject", "nearest")
-INTERCEPT_NAME = "(intercept)"
+#: The intercept's label where it takes part in a diagnostic (the conditioning basis). Reserved:
+#: no input variable may carry it, so a label never stands for two columns.
+INTERCEPT_NAME = "<constant>"
 
 
 @dataclass(frozen=True, slots=True)
@@ -200,7 +202,7 @@ class Summary:
         """Uncentred cross-products of the design, for conditioning; None without moments.
 
         With ``intercept`` the matrix is :math:`[1, X]^\\top W [1, X]` with the constant first
-        (named ``"(intercept)"``); without it :math:`X^\\top W X`. Built from the centred
+        (named ``"<constant>"``); without it :math:`X^\\top W X`. Built from the centred
         co-moments as :math:`C + n m m^\\top`, which keeps every digit of the centred part.
         """
         if not self.has_moments:
@@ -428,12 +430,20 @@ def _check_policy(value: str, allowed: Sequence[str], pointer: str) -> None:
         )
 
 
+_RESERVED_REASON = (
+    f"the name {INTERCEPT_NAME!r} is reserved for the intercept in the diagnostics; "
+    "rename this variable"
+)
+
+
 def _check_names(names: Sequence[str], pointer: str) -> tuple[str, ...]:
     problems = []
     seen: dict[str, int] = {}
     for i, name in enumerate(names):
         if not isinstance(name, str) or not name:
             problems.append(Problem(f"{pointer}/{i}", "names must be non-empty strings"))
+        elif name == INTERCEPT_NAME:
+            problems.append(Problem(f"{pointer}/{i}", _RESERVED_REASON))
         elif name in seen:
             problems.append(
                 Problem(
@@ -702,6 +712,9 @@ def _from_table(
     categorical = dict(categorical or {})
     if not isinstance(columns, Mapping):
         raise InputError.at("/columns", "columns must map names to lists of numbers")
+    for where, named in (("columns", columns), ("categorical", categorical)):
+        if INTERCEPT_NAME in named:
+            raise InputError.at(f"/{where}/{esc(INTERCEPT_NAME)}", _RESERVED_REASON)
     for name in categorical:
         if name in columns:
             raise InputError.at(
