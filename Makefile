@@ -9,11 +9,11 @@ PORT   ?= 8000
 
 .PHONY: install run demo test lint format openapi bench image-check clean
 
-$(STAMP): pyproject.toml constraints.txt clients/python/pyproject.toml
+$(STAMP): pyproject.toml constraints.txt clients/python/pyproject.toml contract/pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	PIP_CONSTRAINT=$(CURDIR)/constraints.txt $(BIN)/pip install --quiet \
 		--disable-pip-version-check -c constraints.txt \
-		-e '.[dev]' -e './clients/python[all]'
+		-e ./contract -e '.[dev]' -e './clients/python[all]'
 	touch $(STAMP)
 
 install: $(STAMP)

@@ -28,7 +28,7 @@ from knotwork.codecs import (
     join,
     options_from_query,
 )
-from knotwork.codecs._pointers import msgspec_fault
+from knotwork_contract import msgspec_fault
 
 
 def test_sections_match_the_core() -> None:

@@ -5,6 +5,8 @@ into a :class:`Prepared` request or raises a :class:`CodecError` that points at 
 :func:`run` hands a prepared request to the core.
 """
 
+from knotwork_contract import escape, join
+
 from ._arrow import ARROW_FILE, ARROW_STREAM, PARQUET, decode_table_body, read_table, table_data
 from ._errors import (
     CodecError,
@@ -16,7 +18,6 @@ from ._errors import (
     UnusableInput,
 )
 from ._json import decode_assess, decode_batch
-from ._pointers import escape, join
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
 from ._query import QUERY_PARAMETERS, options_from_query
 from ._wire import (

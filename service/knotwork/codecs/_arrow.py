@@ -16,8 +16,9 @@ import pyarrow as pa
 import pyarrow.ipc
 import pyarrow.parquet as pq
 
+from knotwork_contract import join
+
 from ._errors import Fault, MalformedBody, TooLarge, UnusableInput
-from ._pointers import join
 from ._prepared import Limits, Origin, Prepared, TableData
 from ._query import options_from_query
 

@@ -13,8 +13,9 @@ import msgspec
 import numpy as np
 from msgspec import Meta, Raw, Struct
 
+from knotwork_contract import join, msgspec_fault
+
 from ._errors import Fault, InvalidRequest, MalformedBody, TooLarge
-from ._pointers import join, msgspec_fault
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
 from ._wire import AssessRequest, CorrelationInput, MomentsInput, Name, TableInput
 

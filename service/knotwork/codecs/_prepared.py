@@ -11,7 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._pointers import join
+from knotwork_contract import join
+
 from ._wire import AssessOptions
 
 __all__ = ["CorrelationData", "Limits", "MomentsData", "Origin", "Prepared", "TableData"]

@@ -15,8 +15,9 @@ from urllib.parse import parse_qsl
 
 import msgspec
 
+from knotwork_contract import join, msgspec_fault
+
 from ._errors import Fault, InvalidRequest
-from ._pointers import join, msgspec_fault
 from ._prepared import Origin
 from ._wire import AssessOptions
 

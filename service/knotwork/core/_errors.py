@@ -85,8 +85,3 @@ class OptionError(KnotworkError):
 
     kind = "invalid-option"
     scope = "options"
-
-
-def pointer_escape(token: str) -> str:
-    """Escape one reference token for a JSON pointer (RFC 6901, section 3)."""
-    return token.replace("~", "~0").replace("/", "~1")

@@ -14,6 +14,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from knotwork_contract import escape as esc
+
 from ._errors import (
     InputError,
     MatrixError,
@@ -22,7 +24,6 @@ from ._errors import (
     Problem,
     TooFewDataError,
 )
-from ._errors import pointer_escape as esc
 from ._interrupt import checkpoint
 from ._notices import Notice, notice
 
