@@ -1,13 +1,14 @@
 """The client installs on its own: a wheel into a fresh virtual environment, no server.
 
-Builds the wheel from clients/python, installs it (and only its declared dependencies, pinned
-by constraints.txt) into a new virtual environment without system site-packages, and checks
+Builds the wheels of clients/python and of the shared contract, installs them (and only their
+declared dependencies, pinned by constraints.txt) into a new virtual environment without system site-packages, and checks
 there that the client works while the server package, pandas, pyarrow and dask are absent.
 Needs the package index (about 20 s); marked slow.
 """
 
 from __future__ import annotations
 
+import re
 import subprocess
 import sys
 import textwrap
@@ -19,6 +20,7 @@ import pytest
 
 REPO = Path(__file__).resolve().parents[2]
 CLIENT = REPO / "clients" / "python"
+CONTRACT = REPO / "contract"
 
 SMOKE = textwrap.dedent(
     """
@@ -77,6 +79,7 @@ def wheel(tmp_path_factory) -> Path:
         "-w",
         str(out),
         str(CLIENT),
+        str(CONTRACT),
     )
     (found,) = out.glob("knotwork_client-*.whl")
     return found
@@ -89,11 +92,11 @@ def test_wheel_declares_only_the_light_dependencies(wheel):
         meta = Parser().parsestr(zf.read(meta_name).decode())
         names = zf.namelist()
     required = sorted(
-        r.split(";")[0].split(">")[0].strip()
+        re.split(r"[;<>=!~ ]", r, maxsplit=1)[0]
         for r in meta.get_all("Requires-Dist")
         if "extra ==" not in r
     )
-    assert required == ["anyio", "httpx", "msgspec", "numpy", "threadpoolctl"]
+    assert required == ["anyio", "httpx", "knotwork-contract", "msgspec", "numpy", "threadpoolctl"]
     assert not any(n.startswith("knotwork/") for n in names)
     assert "knotwork_client/py.typed" in names
 
@@ -112,6 +115,8 @@ def test_installs_and_runs_in_a_fresh_environment(wheel, tmp_path):
         "--disable-pip-version-check",
         "-c",
         str(REPO / "constraints.txt"),
+        "--find-links",
+        str(wheel.parent),
         str(wheel),
     )
     # Run from an empty folder so nothing from the repository is importable by accident.
