@@ -1,8 +1,9 @@
 """The client installs on its own: a wheel into a fresh virtual environment, no server.
 
 Builds the wheels of clients/python and of the shared contract, installs them (and only their
-declared dependencies, pinned by constraints.txt) into a new virtual environment without system site-packages, and checks
-there that the client works while the server package, pandas, pyarrow and dask are absent.
+declared dependencies, pinned by constraints.txt) into a new virtual environment without system
+site-packages, and checks there that the client works while the server package, pandas,
+pyarrow and dask are absent.
 Needs the package index (about 20 s); marked slow.
 """
 
