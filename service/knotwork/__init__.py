@@ -1,3 +1,6 @@
 """knotwork: collinearity diagnostics for regression designs."""
 
-__version__ = "0.1.0"
+from importlib.metadata import version
+
+#: The installed distribution's version (stated once, in pyproject.toml).
+__version__ = version("knotwork")

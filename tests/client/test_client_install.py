@@ -97,7 +97,15 @@ def test_wheel_declares_only_the_light_dependencies(wheel):
         for r in meta.get_all("Requires-Dist")
         if "extra ==" not in r
     )
-    assert required == ["anyio", "httpx", "knotwork-contract", "msgspec", "numpy", "threadpoolctl"]
+    assert required == [
+        "anyio",
+        "httpx",
+        "knotwork-contract",
+        "msgspec",
+        "numpy",
+        "threadpoolctl",
+        "tqdm",
+    ]
     assert not any(n.startswith("knotwork/") for n in names)
     assert "knotwork_client/py.typed" in names
 

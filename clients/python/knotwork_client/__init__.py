@@ -49,8 +49,7 @@ from ._results import (
     Variable,
 )
 from ._summary import Summary, merge_summaries, summarize
-
-__version__ = "0.1.0"
+from ._version import VERSION as __version__
 
 __all__ = [
     "DEFAULT_TIMEOUT",

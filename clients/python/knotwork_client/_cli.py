@@ -34,6 +34,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 import httpx
+from tqdm import tqdm
 
 from ._client import Client
 from ._config import Retry
@@ -358,7 +359,7 @@ def _screen(client: Client, model: Model) -> Outcome:
 
 
 class _Progress:
-    """A redrawn bar on a terminal, one plain line per model otherwise."""
+    """A progress bar (tqdm) on a terminal, one plain line per model otherwise."""
 
     def __init__(self, total: int, mode: str, stream: TextIO) -> None:
         if mode == "auto":
@@ -368,14 +369,18 @@ class _Progress:
         self.done = 0
         self.started = time.monotonic()
         self._lock = threading.Lock()
+        self._bar: tqdm[None] | None = None
         if self.mode == "bar":
-            self._draw("")
+            self._bar = tqdm(total=total, file=stream, desc=PROG, unit="model", leave=True)
 
     def update(self, outcome: Outcome) -> None:
         with self._lock:
             self.done += 1
             self.counts[outcome.status] += 1
-            if self.mode == "log":
+            if self._bar is not None:
+                self._bar.set_postfix(self.counts, refresh=False)
+                self._bar.update(1)
+            elif self.mode == "log":
                 detail = ""
                 if outcome.status == "fail":
                     detail = f" (breaks the rule: {outcome.row['breaches'].replace(';', ', ')})"
@@ -384,20 +389,6 @@ class _Progress:
                 self._line(
                     f"[{self.done}/{self.total}] {outcome.model.name}: {outcome.status}{detail}"
                 )
-            elif self.mode == "bar":
-                self._draw(outcome.model.name)
-
-    def _draw(self, last: str) -> None:
-        width = 30
-        filled = int(width * self.done / max(self.total, 1))
-        bar = "#" * filled + "." * (width - filled)
-        c = self.counts
-        text = (
-            f"\r{PROG} [{bar}] {self.done}/{self.total}  pass {c['pass']}  fail {c['fail']}  "
-            f"error {c['error']}  {last[:30]:<30}"
-        )
-        self.stream.write(text)
-        self.stream.flush()
 
     def _line(self, text: str) -> None:
         self.stream.write(f"{PROG}: {text}\n")
@@ -406,8 +397,8 @@ class _Progress:
     def finish(self) -> None:
         c = self.counts
         took = time.monotonic() - self.started
-        if self.mode == "bar":
-            self.stream.write("\n")
+        if self._bar is not None:
+            self._bar.close()
         if self.mode != "none":
             self._line(
                 f"{self.total} models in {took:.1f} s: {c['pass']} pass, {c['fail']} break the "

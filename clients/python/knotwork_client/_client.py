@@ -29,10 +29,10 @@ from ._exceptions import (
     TransportError,
 )
 from ._results import Assessment, ProblemDetails
+from ._version import VERSION
 
 __all__ = ["AsyncClient", "Client"]
 
-_VERSION = "0.1.0"
 
 #: Connection failures worth another try: nothing reached the service, or the connection broke
 #: before an answer. A read timeout is not among them: the service may still be computing, and
@@ -110,7 +110,7 @@ class _BaseClient:
         self._clock = clock or time.monotonic
         self._uniform = random.random
         merged = {
-            "User-Agent": f"knotwork-client/{_VERSION}",
+            "User-Agent": f"knotwork-client/{VERSION}",
             "Accept": "application/json, application/problem+json",
         }
         merged.update(headers or {})
