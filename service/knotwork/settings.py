@@ -37,6 +37,12 @@ from pathlib import Path
 
 __all__ = ["Settings", "SettingsError", "usable_cores"]
 
+#: Input limits by default, stated once: the settings and the codecs' limits use these.
+DEFAULT_MAX_BODY_BYTES = 64 * 1024 * 1024
+DEFAULT_MAX_CELLS = 10_000_000
+DEFAULT_MAX_COLUMNS = 1000
+DEFAULT_MAX_BATCH_ITEMS = 500
+
 #: Shortest bearer token accepted: shorter ones are guessable.
 MIN_TOKEN_LENGTH = 16
 
@@ -118,10 +124,10 @@ class Settings:
 
     tokens: tuple[str, ...] = field(default=(), repr=False)
     allow_open: bool = False
-    max_body_bytes: int = 64 * 1024 * 1024
-    max_cells: int = 10_000_000
-    max_columns: int = 1000
-    max_batch_items: int = 500
+    max_body_bytes: int = DEFAULT_MAX_BODY_BYTES
+    max_cells: int = DEFAULT_MAX_CELLS
+    max_columns: int = DEFAULT_MAX_COLUMNS
+    max_batch_items: int = DEFAULT_MAX_BATCH_ITEMS
     workers: int = 1
     concurrency: int = field(default_factory=usable_cores)
     queue: int | None = None
@@ -149,25 +155,31 @@ class Settings:
             Listing every variable that is wrong, each with what was expected.
         """
         env = os.environ if environ is None else environ
+        # Every default is the field's own (the dataclass above states each once).
+        d = cls()
         problems: list[str] = []
         reader = _Reader(env, problems)
 
         tokens = list(reader.tokens_file("KNOTWORK_TOKENS_FILE"))
         tokens += reader.token_list("KNOTWORK_TOKENS")
-        allow_open = reader.boolean("KNOTWORK_ALLOW_OPEN", False)
-        max_body_bytes = reader.integer("KNOTWORK_MAX_BODY_BYTES", 64 * 1024 * 1024, minimum=1024)
-        max_cells = reader.integer("KNOTWORK_MAX_CELLS", 10_000_000, minimum=1)
-        max_columns = reader.integer("KNOTWORK_MAX_COLUMNS", 1000, minimum=1)
-        max_batch_items = reader.integer("KNOTWORK_MAX_BATCH_ITEMS", 500, minimum=1)
-        workers = reader.integer("KNOTWORK_WORKERS", 1, minimum=1, maximum=256)
+        allow_open = reader.boolean("KNOTWORK_ALLOW_OPEN", d.allow_open)
+        max_body_bytes = reader.integer("KNOTWORK_MAX_BODY_BYTES", d.max_body_bytes, minimum=1024)
+        max_cells = reader.integer("KNOTWORK_MAX_CELLS", d.max_cells, minimum=1)
+        max_columns = reader.integer("KNOTWORK_MAX_COLUMNS", d.max_columns, minimum=1)
+        max_batch_items = reader.integer("KNOTWORK_MAX_BATCH_ITEMS", d.max_batch_items, minimum=1)
+        workers = reader.integer("KNOTWORK_WORKERS", d.workers, minimum=1, maximum=256)
         concurrency = reader.integer(
             "KNOTWORK_CONCURRENCY", max(1, usable_cores() // max(workers, 1)), minimum=1
         )
         queue = reader.integer("KNOTWORK_QUEUE", 2 * concurrency, minimum=0)
-        timeout = reader.number("KNOTWORK_REQUEST_TIMEOUT_S", 30.0, minimum=0.001)
-        retry_after = reader.integer("KNOTWORK_RETRY_AFTER_S", 1, minimum=1, maximum=3600)
-        blas_threads = reader.integer("KNOTWORK_BLAS_THREADS", 1, minimum=1, maximum=256)
-        log_level = reader.choice("KNOTWORK_LOG_LEVEL", "info", _LOG_LEVELS)
+        timeout = reader.number("KNOTWORK_REQUEST_TIMEOUT_S", d.request_timeout_s, minimum=0.001)
+        retry_after = reader.integer(
+            "KNOTWORK_RETRY_AFTER_S", d.retry_after_s, minimum=1, maximum=3600
+        )
+        blas_threads = reader.integer(
+            "KNOTWORK_BLAS_THREADS", d.blas_threads, minimum=1, maximum=256
+        )
+        log_level = reader.choice("KNOTWORK_LOG_LEVEL", d.log_level, _LOG_LEVELS)
 
         if problems:
             raise SettingsError(problems)

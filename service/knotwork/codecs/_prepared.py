@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from knotwork.settings import DEFAULT_MAX_BATCH_ITEMS, DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS
 from knotwork_contract import join
 
 from ._wire import AssessOptions
@@ -22,9 +23,9 @@ __all__ = ["CorrelationData", "Limits", "MomentsData", "Origin", "Prepared", "Ta
 class Limits:
     """Input limits from the settings; beyond them a request answers 413."""
 
-    max_cells: int = 10_000_000
-    max_columns: int = 1000
-    max_batch_items: int = 500
+    max_cells: int = DEFAULT_MAX_CELLS
+    max_columns: int = DEFAULT_MAX_COLUMNS
+    max_batch_items: int = DEFAULT_MAX_BATCH_ITEMS
 
 
 @dataclass(frozen=True, slots=True, eq=False)
