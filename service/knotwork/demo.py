@@ -122,7 +122,7 @@ def render(a: Assessment) -> str:
     if comp is not None:
         lines.append(
             f"principal components: keep {len(comp.kept)} of {len(comp.eigenvalues)} "
-            f"by rule {comp.rule}"
+            f"by rule {comp.rule} (limit {comp.limit:g}), largest VIF left {comp.max_vif:.3f}"
         )
     if a.warnings:
         lines += ["", "warnings:"] + [f"  [{w.code}] {w.message}" for w in a.warnings]

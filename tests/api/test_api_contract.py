@@ -175,6 +175,8 @@ CASES = [
          "/options/protect/0"),
     Case("uncentred-needs-moments", doc(CORR, intercept=False), 422, "invalid-option",
          "/options/intercept"),
+    Case("limit-with-vif-threshold-rule", doc(CORR, components={"limit": 10}), 422,
+         "invalid-option", "/options/components/limit"),
     Case("response-not-a-column", doc(table(response="yield")), 422, "invalid-input",
          "/input/response"),
     Case("negative-weights", doc(table(columns={**COLUMNS, "w": [1, 1, -2, 1, 1, 1]},
@@ -198,6 +200,8 @@ CASES = [
          ARROW, query="response=yield"),
     Case("arrow-unknown-protect", arrow(COLUMNS), 422, "invalid-option", "/query/protect",
          ARROW, query="protect=zz&sections=variables,removal"),
+    Case("arrow-limit-with-vif-threshold-rule", arrow(COLUMNS), 422, "invalid-option",
+         "/query/components_limit", ARROW, query="components_limit=10"),
     # Content types (415).
     Case("csv-content-type", b"a,b\n1,2\n", 415, "unsupported-media-type", "", "text/csv"),
     Case("no-content-type", doc(CORR), 415, "unsupported-media-type", "", None),

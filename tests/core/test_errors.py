@@ -269,6 +269,13 @@ CASES = [
         "/components/limit",
         "a cumulative share must lie in (0, 1]",
     ),
+    (
+        lambda: assess(from_correlation(["a", "b"], np.eye(2), 9), Options(components_limit=10.0)),
+        OptionError,
+        "/components/limit",
+        "the vif_threshold rule takes its limit from threshold; set threshold instead of "
+        "components.limit, or choose rule condition_index or cumulative",
+    ),
 ]
 
 

@@ -96,10 +96,14 @@ def _query_parameters() -> list[Parameter]:
         param("weights", {"type": "string"}, "The column of non-negative weights."),
         param("ridge_grid", {"type": "array", "items": {"type": "number", "minimum": 0}},
               "Ridge k values (correlation scale), comma-separated.", explode=True),
-        param("components_rule", {"enum": ["condition_index", "cumulative"]},
-              "How principal components are kept."),
+        param("components_rule",
+              {"enum": ["vif_threshold", "condition_index", "cumulative"],
+               "default": "vif_threshold"},
+              "How principal components are kept (default: the most leading components whose "
+              "regression has every VIF at or below threshold)."),
         param("components_limit", {"type": "number", "exclusiveMinimum": 0},
-              "The limit of the components rule."),
+              "The limit of the condition_index or cumulative rule; refused with "
+              "vif_threshold, whose limit is threshold."),
     ]  # fmt: skip
 
 

@@ -228,22 +228,25 @@ class ComponentsOptions(_Wire, frozen=True):
     """Settings of principal components."""
 
     rule: Annotated[
-        Literal["condition_index", "cumulative"],
+        Literal["vif_threshold", "condition_index", "cumulative"],
         Meta(
             description=(
-                "How to choose the kept components: by condition index (drop those above the "
-                "limit) or by cumulative share of variance (keep until the limit is reached)."
+                "How to choose the kept components: by the VIF threshold (default: keep the "
+                "most leading components whose regression has every VIF at or below "
+                "`threshold`), by condition index (drop those above the limit) or by "
+                "cumulative share of variance (keep until the limit is reached)."
             )
         ),
-    ] = "condition_index"
+    ] = "vif_threshold"
     limit: (
         Annotated[
             float,
             Meta(
                 gt=0,
                 description=(
-                    "The rule's limit: a condition index, or a cumulative share of variance in "
-                    "(0, 1]; default: the core's rule-of-thumb value, reported in the result."
+                    "The limit of condition_index (a condition index) or cumulative (a share "
+                    "of variance in (0, 1]); default: the core's rule-of-thumb value, reported "
+                    "in the result. Refused with vif_threshold, whose limit is `threshold`."
                 ),
             ),
         ]

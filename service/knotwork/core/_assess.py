@@ -9,7 +9,13 @@ from typing import TypedDict
 
 import numpy as np
 
-from ._components import Components, principal_components
+from ._components import (
+    LIMIT_WITH_VIF_THRESHOLD,
+    RULES,
+    VIF_THRESHOLD,
+    Components,
+    principal_components,
+)
 from ._conditioning import Conditioning, condition_diagnostics
 from ._dependencies import Dependency, DependencyReport, Spectrum, find_dependencies
 from ._errors import OptionError, Problem
@@ -34,7 +40,6 @@ SECTIONS = (
     "components",
     "comparison",
 )
-COMPONENT_RULES = ("condition_index", "cumulative")
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
@@ -72,11 +77,13 @@ class Options:
     ridge_grid
         Values of k on the correlation scale for the ridge trace (None: a default grid).
     components_rule
-        ``"condition_index"`` (drop components whose index exceeds ``components_limit``,
-        default 30) or ``"cumulative"`` (keep the fewest explaining ``components_limit`` of
-        the variance, default 0.95).
+        ``"vif_threshold"`` (default: keep the most leading components whose regression has
+        every VIF at or below ``threshold``), ``"condition_index"`` (drop components whose
+        index exceeds ``components_limit``, default 30) or ``"cumulative"`` (keep the fewest
+        explaining ``components_limit`` of the variance, default 0.95).
     components_limit
-        The rule's limit (None: its default).
+        The limit of ``"condition_index"`` or ``"cumulative"`` (None: its default); refused
+        with ``"vif_threshold"``, whose limit is ``threshold``.
     index_threshold, proportion_threshold
         A tangle is a component with condition index above ``index_threshold`` and two or more
         variance-decomposition proportions above ``proportion_threshold`` (common practice
@@ -88,7 +95,7 @@ class Options:
     intercept: bool = True
     sections: Collection[str] | None = None
     ridge_grid: tuple[float, ...] | None = None
-    components_rule: str = "condition_index"
+    components_rule: str = VIF_THRESHOLD
     components_limit: float | None = None
     index_threshold: float = 30.0
     proportion_threshold: float = 0.5
@@ -188,16 +195,18 @@ def check_options(options: Options, summary: Summary) -> None:
         for i, k in enumerate(options.ridge_grid):
             if not math.isfinite(k) or k < 0:
                 problems.append(Problem(f"/ridge/grid/{i}", "k must be a finite number >= 0"))
-    if options.components_rule not in COMPONENT_RULES:
+    if options.components_rule not in RULES:
         problems.append(
             Problem(
                 "/components/rule",
-                f"unknown rule {options.components_rule!r}; choose from {COMPONENT_RULES}",
+                f"unknown rule {options.components_rule!r}; choose from {RULES}",
             )
         )
     lim = options.components_limit
     if lim is not None:
-        if options.components_rule == "cumulative" and not (0 < lim <= 1):
+        if options.components_rule == VIF_THRESHOLD:
+            problems.append(Problem("/components/limit", LIMIT_WITH_VIF_THRESHOLD))
+        elif options.components_rule == "cumulative" and not (0 < lim <= 1):
             problems.append(Problem("/components/limit", "a cumulative share must lie in (0, 1]"))
         elif options.components_rule == "condition_index" and not (math.isfinite(lim) and lim >= 1):
             problems.append(
@@ -355,7 +364,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     checkpoint()
     if options.wants("components") or wants_comparison:
         components = principal_components(
-            matrix, names, rule=options.components_rule, limit=options.components_limit, **fit
+            matrix,
+            names,
+            rule=options.components_rule,
+            limit=options.components_limit,
+            threshold=options.threshold,
+            **fit,
         )
     checkpoint()
     if wants_comparison:

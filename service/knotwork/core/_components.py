@@ -11,14 +11,27 @@ import numpy as np
 from ._dependencies import Spectrum
 from ._errors import InputError, OptionError
 
+VIF_THRESHOLD = "vif_threshold"
 CONDITION_INDEX = "condition_index"
 CUMULATIVE = "cumulative"
+#: Every rule, the default first.
+RULES = (VIF_THRESHOLD, CONDITION_INDEX, CUMULATIVE)
+
+#: The VIF threshold of the ``vif_threshold`` rule when the caller gives none (common practice:
+#: 5 or 10; the same default as the assessment's ``threshold``).
+DEFAULT_THRESHOLD = 5.0
 
 #: Default limits: condition index 30 (common practice after Belsley, Kuh & Welsch 1980) and a
-#: cumulative share of 0.95 (a common choice, not a published cut-off).
+#: cumulative share of 0.95 (a common choice, not a published cut-off). The ``vif_threshold``
+#: rule has no limit of its own: its limit is the VIF threshold.
 DEFAULT_LIMITS = {CONDITION_INDEX: 30.0, CUMULATIVE: 0.95}
 
 _RULE_TEXT = {
+    VIF_THRESHOLD: (
+        "keep the largest set of leading components whose regression has every VIF, "
+        "diag(V_S L_S^-1 V_S'), at or below the threshold {limit:g} (a rule of thumb from "
+        "common practice), drop the rest"
+    ),
     CONDITION_INDEX: (
         "keep the components whose condition index sqrt(l_1 / l_k) is at most {limit:g} "
         "(30 is common practice after Belsley, Kuh & Welsch), drop the rest"
@@ -51,17 +64,19 @@ class Components:
         ``variable_correlations[k][j]`` = loading times sqrt(l_k): the correlation of variable
         j with component k (with a cosine matrix, the cosine).
     kept
-        Indices (into ``eigenvalues``, largest first) of the components the rule keeps.
+        Indices (into ``eigenvalues``, largest first) of the components the rule keeps: always
+        the leading ones, 0 to m - 1.
     rule
-        ``"condition_index"`` or ``"cumulative"``.
+        ``"vif_threshold"``, ``"condition_index"`` or ``"cumulative"``.
     limit
-        The limit of the rule (echoed).
+        The limit of the rule (echoed): the VIF threshold for ``"vif_threshold"``.
     rule_text
         The rule in words.
     vif
         Variance inflation of the regression coefficients on the kept components,
         diag(V_S L_S^-1 V_S'): the variance relative to an orthogonal design, as the VIF is for
-        OLS (they are equal when every component is kept).
+        OLS (they are equal when every component is kept); the ``"vif_threshold"`` rule keeps
+        them at or below its limit.
     max_vif
         The largest of them.
     coefficients
@@ -132,17 +147,29 @@ _NOTES = (
     "coefficient no longer means the effect of its variable with the others held fixed.",
     "A low-variance component can still matter for the response (Jolliffe 1982); compare "
     "r_squared_by_component before dropping one.",
-    "The condition-index limit 30 and the cumulative share 0.95 are rules of thumb from common "
-    "practice; decisions on regulated models follow local rules and qualified review.",
+    "The VIF threshold (5 or 10), the condition-index limit 30 and the cumulative share 0.95 "
+    "are rules of thumb from common practice; decisions on regulated models follow local rules "
+    "and qualified review.",
+)
+
+#: Why a ``limit`` is refused with the ``vif_threshold`` rule (pinned in the tests).
+LIMIT_WITH_VIF_THRESHOLD = (
+    "the vif_threshold rule takes its limit from threshold; set threshold instead of "
+    "components.limit, or choose rule condition_index or cumulative"
 )
 
 
-def _check_rule(rule: str, limit: float | None) -> float:
+def _check_rule(rule: str, limit: float | None, threshold: float) -> float:
     if rule not in _RULE_TEXT:
-        raise OptionError.at(
-            "/components/rule",
-            f"unknown rule {rule!r}; choose {CONDITION_INDEX!r} or {CUMULATIVE!r}",
-        )
+        raise OptionError.at("/components/rule", f"unknown rule {rule!r}; choose from {RULES}")
+    if rule == VIF_THRESHOLD:
+        if limit is not None:
+            raise OptionError.at("/components/limit", LIMIT_WITH_VIF_THRESHOLD)
+        if not (math.isfinite(threshold) and threshold >= 1.0):
+            raise OptionError.at(
+                "/threshold", f"the threshold must be a finite number >= 1, got {threshold}"
+            )
+        return float(threshold)
     value = DEFAULT_LIMITS[rule] if limit is None else float(limit)
     if rule == CUMULATIVE and not (0.0 < value <= 1.0):
         raise OptionError.at(
@@ -160,8 +187,9 @@ def principal_components(
     names: Sequence[str],
     *,
     n: float,
-    rule: str = CONDITION_INDEX,
+    rule: str = VIF_THRESHOLD,
     limit: float | None = None,
+    threshold: float = DEFAULT_THRESHOLD,
     r_xy: np.ndarray | None = None,
     sds: np.ndarray | None = None,
     response_sd: float | None = None,
@@ -181,11 +209,17 @@ def principal_components(
     n
         Number of observations (or sum of weights).
     rule
-        ``"condition_index"`` (default: drop components whose condition index exceeds
-        ``limit``, default 30) or ``"cumulative"`` (keep the fewest leading components whose
-        cumulative share reaches ``limit``, default 0.95).
+        ``"vif_threshold"`` (default: keep the most leading components whose regression has
+        every VIF at or below ``threshold``), ``"condition_index"`` (drop components whose
+        condition index exceeds ``limit``, default 30) or ``"cumulative"`` (keep the fewest
+        leading components whose cumulative share reaches ``limit``, default 0.95).
     limit
-        The rule's limit; None for its default.
+        The limit of ``"condition_index"`` or ``"cumulative"``; None for its default. Refused
+        with ``"vif_threshold"``, whose limit is ``threshold`` (one threshold for every
+        remedy, so they aim at the same goal).
+    threshold
+        The VIF threshold of the ``"vif_threshold"`` rule (a rule of thumb: 5 or 10; default 5,
+        as the assessment's); ignored by the other rules.
     r_xy
         Correlations of the predictors with the response, for principal-component regression.
     sds, response_sd, means, response_mean
@@ -202,7 +236,8 @@ def principal_components(
     Raises
     ------
     OptionError
-        An unknown rule or a limit out of range.
+        An unknown rule, a limit out of range, a limit given with ``"vif_threshold"``, or a
+        threshold below 1.
 
     Notes
     -----
@@ -216,13 +251,25 @@ def principal_components(
         \\mathrm{Var}(b) = s^2\\, V_S \\Lambda_S^{-1} V_S^\\top, \\qquad
         R_S^2 = \\sum_{k \\in S} (v_k^\\top r_{xy})^2 / l_k .
 
-    Keeping every component gives ordinary least squares exactly. Condition indices are
+    Keeping every component gives ordinary least squares exactly. The diagonal of
+    :math:`V_S \\Lambda_S^{-1} V_S^\\top` is :math:`\\sum_{k \\in S} v_{jk}^2 / l_k`, the PCR
+    analogue of the VIF: it grows with every component added and equals the OLS VIF with all of
+    them. The ``vif_threshold`` rule keeps the leading m components for the largest m whose
+    diagonal is at most the threshold T everywhere; since the diagonal only grows with m, the
+    kept set is the largest qualifying leading set and one more component would exceed T.
+    Edge cases: one component always qualifies when T >= 1, since
+    :math:`v_{j1}^2 / l_1 \\le 1/l_1 \\le 1` (the largest eigenvalue of a matrix with unit
+    diagonal is at least the mean eigenvalue, 1), so the kept set is never empty; when every
+    OLS VIF is already at most T, every component is kept and the fit is OLS; components with a
+    zero eigenvalue (exact dependencies) are never kept, under any rule. Condition indices are
     :math:`\\sqrt{l_1 / l_k}` (the centred variant of Belsley, Kuh & Welsch's indices, from the
     correlation matrix). Original units: :math:`\\beta_j = b_j s_y/s_j`,
     :math:`\\mathrm{Var}(\\beta_j) = \\mathrm{Var}(b_j) (s_y/s_j)^2`.
 
     Verification: Longley (statsmodels.datasets) with every component kept reproduces the NIST
     StRD certified coefficients to 1e-7 relative and statsmodels' OLS standard errors; the
+    diagonal and the ``vif_threshold`` choice equal an independent computation from
+    scikit-learn's ``PCA`` of the standardized columns (Longley, diabetes, copper); the
     kept-component fit equals scikit-learn's ``PCA`` followed by ``LinearRegression`` on
     standardized data to 1e-8 (diabetes, Longley); eigenvalues equal methods.md's Longley
     check values.
@@ -243,7 +290,7 @@ def principal_components(
     p = len(names)
     if m.shape != (p, p):
         raise InputError.at("/matrix", f"expected a {p} x {p} matrix, got shape {m.shape}")
-    value = _check_rule(rule, limit)
+    value = _check_rule(rule, limit, threshold)
     spec = spectrum if spectrum is not None else Spectrum.of(m)
     nonnull = p - spec.null_dim
     lam = np.where(np.arange(p) < nonnull, spec.values, 0.0)
@@ -257,17 +304,32 @@ def principal_components(
     indices: list[float | None] = [
         math.sqrt(lam[0] / lam[k]) if k < nonnull else None for k in range(p)
     ]
-    if rule == CONDITION_INDEX:
-        kept = [k for k in range(nonnull) if math.sqrt(lam[0] / lam[k]) <= value]
+    # running[j, m - 1] = sum_{k < m} v_jk^2 / l_k, the diagonal of V_S L_S^-1 V_S' for the
+    # leading m components: non-negative terms, so it never decreases with m (in floating point
+    # too), and the reported VIFs are the very numbers the rule compared.
+    running = np.cumsum(vecs[:, :nonnull] ** 2 / lam[:nonnull], axis=1)
+    if rule == VIF_THRESHOLD:
+        fits = np.flatnonzero(running.max(axis=0) <= value)
+        count = int(fits[-1]) + 1 if fits.size else 0
+    elif rule == CONDITION_INDEX:
+        count = sum(1 for k in range(nonnull) if math.sqrt(lam[0] / lam[k]) <= value)
     else:
         reach = np.flatnonzero(cumulative >= value * (1.0 - 1e-12))
-        count = int(reach[0]) + 1 if reach.size else p
-        kept = list(range(min(count, nonnull)))
+        count = min(int(reach[0]) + 1 if reach.size else p, nonnull)
+    kept = list(range(count))
     vs = vecs[:, kept]
     ls = lam[kept]
     g = (vs / ls) @ vs.T  # V_S L_S^-1 V_S'
-    vif = np.diag(g).copy()
+    vif = running[:, count - 1].copy() if count else np.zeros(p)
     notes = list(_NOTES)
+    if rule == VIF_THRESHOLD and count == nonnull:
+        notes.append(
+            f"Every component meets the VIF threshold {value:g}: the regression on all of them "
+            "is ordinary least squares, with the ordinary VIFs."
+            if nonnull == p
+            else f"Every component with a non-zero eigenvalue meets the VIF threshold {value:g}; "
+            "those of the exact dependencies are never kept."
+        )
 
     coef = var = ocoef = ovar = icpt = r2 = r2_full = by_comp = ols = resvar = None
     basis: str | None = None

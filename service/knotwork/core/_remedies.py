@@ -191,7 +191,9 @@ def compare_remedies(
     R^2 minus the remedy's; the residual variance share is
     :math:`(1 - R^2)(n - 1)/(n - 1 - \\text{parameters})`. The ridge row uses the first available
     choice in ``RIDGE_PREFERENCE`` (the k meeting the threshold first, so the rows aim at the
-    same goal).
+    same goal); the components row reports the components as given, which under their default
+    ``vif_threshold`` rule (with the same threshold, as :func:`assess` computes them) keep the
+    most leading components whose VIFs meet the threshold.
 
     Verification: tests compare each row's R^2 with statsmodels OLS on the kept predictors,
     with the ridge trace's own R^2 at the same k and with the components' R^2 (Longley and
