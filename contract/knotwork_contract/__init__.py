@@ -1,9 +1,52 @@
 """The knotwork wire contract, shared by the service and its clients.
 
-Everything a request may contain is declared here once; the service's decoders, its OpenAPI
-document and the client's local checks are derived from these declarations.
+Everything a request may contain is declared here once, as msgspec Structs whose constraints,
+defaults and descriptions are the rules; the service's decoders, its query-parameter parser and
+OpenAPI document, and the client's local checks are derived from these declarations.
 """
 
 from ._pointers import escape, join, msgspec_fault
+from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
+from ._requests import (
+    SECTIONS,
+    AssessOptions,
+    AssessRequest,
+    BatchRequest,
+    ComponentsOptions,
+    CorrelationInput,
+    CorrelationResponse,
+    Input,
+    MomentsInput,
+    MomentsPart,
+    Name,
+    OptionsError,
+    RidgeOptions,
+    TableInput,
+    check_options,
+)
 
-__all__ = ["escape", "join", "msgspec_fault"]
+__all__ = [
+    "QUERY_PARAMETERS",
+    "SECTIONS",
+    "AssessOptions",
+    "AssessRequest",
+    "BatchRequest",
+    "ComponentsOptions",
+    "CorrelationInput",
+    "CorrelationResponse",
+    "Input",
+    "MomentsInput",
+    "MomentsPart",
+    "Name",
+    "OptionsError",
+    "QueryError",
+    "QueryParameter",
+    "RidgeOptions",
+    "TableInput",
+    "check_options",
+    "escape",
+    "join",
+    "msgspec_fault",
+    "options_query",
+    "parse_query",
+]

@@ -15,8 +15,6 @@ from knotwork.codecs import (
     ARROW_FILE,
     ARROW_STREAM,
     PARQUET,
-    SECTIONS,
-    AssessOptions,
     InvalidRequest,
     Limits,
     Origin,
@@ -25,10 +23,9 @@ from knotwork.codecs import (
     decode_assess,
     decode_batch,
     decode_table_body,
-    join,
     options_from_query,
 )
-from knotwork_contract import msgspec_fault
+from knotwork_contract import SECTIONS, AssessOptions, join, msgspec_fault
 
 
 def test_sections_match_the_core() -> None:

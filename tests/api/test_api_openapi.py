@@ -10,7 +10,7 @@ import msgspec
 import pytest
 
 from knotwork.api.openapi import render
-from knotwork.codecs import AssessRequest, BatchRequest
+from knotwork_contract import AssessRequest, BatchRequest
 
 COMMITTED = Path(__file__).resolve().parents[2] / "openapi" / "openapi.json"
 

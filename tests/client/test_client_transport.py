@@ -233,8 +233,8 @@ def test_small_table_goes_as_json_with_options(stand_in, fake_time, bakery):
             protect=["oven_hours"],
             missing="drop_rows",
             ridge={"grid": [0.01, 0.1]},
-            components={"rule": "kaiser"},
-            sections=["inflation", "removal"],
+            components={"rule": "cumulative", "limit": 0.9},
+            sections=["variables", "removal"],
         )
     request = stand_in.requests[0]
     assert request.headers["authorization"] == "Bearer s3cret"
@@ -245,8 +245,8 @@ def test_small_table_goes_as_json_with_options(stand_in, fake_time, bakery):
         "protect": ["oven_hours"],
         "missing": "drop_rows",
         "ridge": {"grid": [0.01, 0.1]},
-        "components": {"rule": "kaiser"},
-        "sections": ["inflation", "removal"],
+        "components": {"rule": "cumulative", "limit": 0.9},
+        "sections": ["variables", "removal"],
     }
     inp = body["input"]
     assert inp["kind"] == "table"
@@ -340,18 +340,49 @@ def test_summary_goes_as_moments_and_correlation_as_is(stand_in, fake_time, bake
 
 
 def test_local_option_checks(stand_in, fake_time, bakery):
-    with (
-        client_for(stand_in, fake_time) as client,
-        pytest.raises(ValueError, match=r"unknown options \['treshold'\]"),
-    ):
-        client.assess(bakery, treshold=10)
-        with pytest.raises(ValueError, match="missing must be one of"):
+    with client_for(stand_in, fake_time) as client:
+        with pytest.raises(ValueError, match=r"unknown options \['treshold'\]"):
+            client.assess(bakery, treshold=10)
+        # The contract's rules, in the service's own words and pointers.
+        with pytest.raises(
+            ValueError, match=r"Invalid enum value 'sometimes' \(at /options/missing\)"
+        ):
             client.assess(bakery, missing="sometimes")
-        with pytest.raises(ValueError, match="threshold must be a finite number > 0"):
-            client.assess(bakery, threshold=-1)
+        with pytest.raises(ValueError, match=r"Expected `float` > 1.0 \(at /options/threshold\)"):
+            client.assess(bakery, threshold=0.5)
         with pytest.raises(ValueError, match="encoding must be"):
             client.assess(bakery, encoding="xml")
     assert stand_in.requests == []
+
+
+@pytest.mark.parametrize(
+    "options",
+    [
+        {"threshold": 0.5},
+        {"threshold": 1},
+        {"missing": "sometimes"},
+        {"sections": ["variables", "everything"]},
+        {"components": {"rule": "largest"}},
+        {"ridge": {"grid": [0.1, -1.0]}},
+        {"protect": [""]},
+    ],
+)
+def test_the_client_refuses_what_the_service_refuses_in_its_words(options):
+    from litestar.testing import TestClient
+
+    from knotwork.api import create_app
+    from knotwork_client._encode import normalize_options
+    from knotwork_contract import OptionsError
+
+    with pytest.raises(OptionsError) as refused:
+        normalize_options(options)
+    body = {"input": {"kind": "correlation", "names": ["a", "b"], "n": 9,
+                      "matrix": [[1, 0.2], [0.2, 1]]}, "options": options}  # fmt: skip
+    with TestClient(create_app()) as service:
+        answer = service.post("/v1/assess", json=body)
+    assert answer.status_code == 400
+    first = answer.json()["errors"][0]
+    assert (first["pointer"], first["reason"]) == (refused.value.pointer, refused.value.reason)
 
 
 def test_batch_mixes_results_and_problems(stand_in, fake_time, bakery):

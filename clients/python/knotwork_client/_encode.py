@@ -5,13 +5,14 @@ Nothing here touches the network; the clients call these functions and send what
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import msgspec
 import numpy as np
+
+from knotwork_contract import AssessOptions, check_options, options_query
 
 from ._exceptions import DataError
 from ._inputs import Correlation, Moments
@@ -31,18 +32,8 @@ __all__ = [
 ARROW_STREAM = "application/vnd.apache.arrow.stream"
 JSON = "application/json"
 
-#: The service's options (design.md "Fixed names").
-OPTION_NAMES = (
-    "threshold",
-    "protect",
-    "intercept",
-    "missing",
-    "repair",
-    "sections",
-    "ridge",
-    "components",
-)
-_ENUMS = {"missing": ("reject", "drop_rows", "pairwise"), "repair": ("reject", "nearest")}
+#: The service's options, as the contract declares them.
+OPTION_NAMES = tuple(f.name for f in msgspec.structs.fields(AssessOptions))
 
 _encoder = msgspec.json.Encoder()
 
@@ -79,12 +70,27 @@ def _names(value: Any, option: str) -> list[str]:
         raise ValueError(f"option {option} must be a list of names, got {value!r}") from None
 
 
+def _plain(value: Any) -> Any:
+    """numpy scalars (and lists of them) as the Python values the contract checks."""
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    return value
+
+
 def normalize_options(options: Mapping[str, Any]) -> dict[str, Any]:
-    """Check option names and shapes locally and return the wire ``options`` document.
+    """Check options locally, by the contract's rules, and return the wire ``options`` document.
 
     ``None`` values are dropped (the service's default applies). ``ridge`` is ``{"grid":
     [k, ...]}`` (a bare list is taken as the grid); ``components`` is ``{"rule": ...,
-    "limit": ...}`` (a bare string is taken as the rule).
+    "limit": ...}`` (a bare string is taken as the rule); a single name may stand for a list.
+
+    Raises
+    ------
+    ValueError
+        An unknown option, or a value the service would refuse (:class:`OptionsError`, with
+        the service's own wording and the pointer it would answer with).
     """
     unknown = sorted(set(options) - set(OPTION_NAMES))
     if unknown:
@@ -93,52 +99,17 @@ def normalize_options(options: Mapping[str, Any]) -> dict[str, Any]:
     for key, value in options.items():
         if value is None:
             continue
-        if key == "threshold":
-            threshold = float(value)
-            if not (math.isfinite(threshold) and threshold > 0):
-                raise ValueError(f"threshold must be a finite number > 0, got {value!r}")
-            out[key] = threshold
-        elif key in ("protect", "sections"):
-            out[key] = _names(value, key)
-        elif key == "intercept":
-            if not isinstance(value, (bool, np.bool_)):
-                raise ValueError(f"intercept must be True or False, got {value!r}")
-            out[key] = bool(value)
-        elif key in _ENUMS:
-            if value not in _ENUMS[key]:
-                raise ValueError(f"{key} must be one of {list(_ENUMS[key])}, got {value!r}")
-            out[key] = value
-        elif key == "ridge":
-            grid = value.get("grid") if isinstance(value, Mapping) else value
-            ridge = dict(value) if isinstance(value, Mapping) else {}
-            if grid is not None:
-                ridge["grid"] = [float(k) for k in grid]
-            out[key] = ridge
-        elif key == "components":
-            out[key] = dict(value) if isinstance(value, Mapping) else {"rule": str(value)}
-    return out
-
-
-def options_query(options: Mapping[str, Any]) -> dict[str, str]:
-    """The options as query parameters, for a request whose body is an Arrow stream."""
-    query: dict[str, str] = {}
-    for key, value in options.items():
         if key in ("protect", "sections"):
-            query[key] = ",".join(value)
-        elif key == "intercept":
-            query[key] = "true" if value else "false"
-        elif key == "threshold":
-            query[key] = repr(value)
+            out[key] = _names(value, key)
         elif key == "ridge":
-            if "grid" in value:
-                query["ridge_grid"] = ",".join(repr(float(k)) for k in value["grid"])
+            out[key] = _plain(dict(value) if isinstance(value, Mapping) else {"grid": value})
         elif key == "components":
-            for sub in ("rule", "limit"):
-                if value.get(sub) is not None:
-                    query[f"components_{sub}"] = str(value[sub])
+            out[key] = _plain(dict(value) if isinstance(value, Mapping) else {"rule": value})
         else:
-            query[key] = str(value)
-    return query
+            out[key] = _plain(value)
+    checked = check_options(out)
+    # What was given, in the contract's types (an integer threshold becomes a float, ...).
+    return {key: msgspec.to_builtins(getattr(checked, key)) for key in out}
 
 
 # --- tables --------------------------------------------------------------------------------
@@ -341,11 +312,7 @@ def encode_assess(
                     f"the {role} column {name!r} is not a numeric column of the table",
                     [(name, "no such numeric column")],
                 )
-        query = options_query(opts)
-        if response is not None:
-            query["response"] = response
-        if weights is not None:
-            query["weights"] = weights
+        query = options_query(opts, {"response": response, "weights": weights})
         return Payload(_arrow_stream(table), ARROW_STREAM, query, "arrow")
     doc = _table_document(table, response, weights)
     return Payload(_encoder.encode({"input": doc, "options": opts}), JSON, None, "table")

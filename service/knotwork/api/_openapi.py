@@ -28,7 +28,8 @@ from litestar.openapi.spec import (
     RequestBody,
 )
 
-from knotwork.codecs import ARROW_FILE, ARROW_STREAM, PARQUET, SECTIONS, AssessRequest, BatchRequest
+from knotwork.codecs import ARROW_FILE, ARROW_STREAM, PARQUET
+from knotwork_contract import QUERY_PARAMETERS, AssessRequest, BatchRequest
 
 from ._examples import CORRELATION_EXAMPLE, MOMENTS_EXAMPLE, PARTS_EXAMPLE, TABLE_EXAMPLE
 from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES, ProblemDocument
@@ -64,47 +65,25 @@ _TABLE_BODY = (
 
 
 def _query_parameters() -> list[Parameter]:
+    """One parameter per option (and column name) of a table body, from the contract."""
     only = " Only for Arrow IPC and Parquet bodies (a JSON body carries its options)."
-
-    def param(
-        name: str, schema: dict[str, Any], description: str, *, explode: bool = False
-    ) -> Parameter:
-        return Parameter(
-            name=name,
-            param_in="query",
-            required=False,
-            schema=schema,  # type: ignore[arg-type]  # litestar serializes plain dicts as they are
-            description=description + only,
-            explode=explode or None,
+    params = []
+    for p in QUERY_PARAMETERS:
+        schema = {k: v for k, v in p.schema.items() if k != "description" and v is not None}
+        description = p.schema.get("description", "")
+        if p.kind == "list":
+            description += " Comma-separated or repeated."
+        params.append(
+            Parameter(
+                name=p.name,
+                param_in="query",
+                required=False,
+                schema=schema,  # type: ignore[arg-type]  # litestar serializes plain dicts as they are
+                description=description + only,
+                explode=True if p.kind == "list" else None,
+            )
         )
-
-    names = {"type": "array", "items": {"type": "string"}}
-    return [
-        param("threshold", {"type": "number", "exclusiveMinimum": 1, "default": 5},
-              "VIF above which a variable counts as redundant (rule of thumb: 5 or 10)."),
-        param("protect", names, "Names never proposed for removal; comma-separated or repeated.",
-              explode=True),
-        param("intercept", {"type": "boolean", "default": True},
-              "true: centred diagnostics; false: regression through the origin."),
-        param("missing", {"enum": ["reject", "drop_rows", "pairwise"], "default": "reject"},
-              "What to do with missing values."),
-        param("repair", {"enum": ["reject", "nearest"], "default": "reject"},
-              "What to do with an inconsistent correlation matrix (pairwise deletion)."),
-        param("sections", {"type": "array", "items": {"enum": list(SECTIONS)}},
-              "Which parts to compute; comma-separated or repeated.", explode=True),
-        param("response", {"type": "string"}, "The response column."),
-        param("weights", {"type": "string"}, "The column of non-negative weights."),
-        param("ridge_grid", {"type": "array", "items": {"type": "number", "minimum": 0}},
-              "Ridge k values (correlation scale), comma-separated.", explode=True),
-        param("components_rule",
-              {"enum": ["vif_threshold", "condition_index", "cumulative"],
-               "default": "vif_threshold"},
-              "How principal components are kept (default: the most leading components whose "
-              "regression has every VIF at or below threshold)."),
-        param("components_limit", {"type": "number", "exclusiveMinimum": 0},
-              "The limit of the condition_index or cumulative rule; refused with "
-              "vif_threshold, whose limit is threshold."),
-    ]  # fmt: skip
+    return params
 
 
 @dataclass

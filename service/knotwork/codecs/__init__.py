@@ -5,8 +5,6 @@ into a :class:`Prepared` request or raises a :class:`CodecError` that points at 
 :func:`run` hands a prepared request to the core.
 """
 
-from knotwork_contract import escape, join
-
 from ._arrow import ARROW_FILE, ARROW_STREAM, PARQUET, decode_table_body, read_table, table_data
 from ._errors import (
     CodecError,
@@ -19,57 +17,28 @@ from ._errors import (
 )
 from ._json import decode_assess, decode_batch
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
-from ._query import QUERY_PARAMETERS, options_from_query
-from ._wire import (
-    SECTIONS,
-    AssessOptions,
-    AssessRequest,
-    BatchRequest,
-    ComponentsOptions,
-    CorrelationInput,
-    CorrelationResponse,
-    Input,
-    MomentsInput,
-    MomentsPart,
-    RidgeOptions,
-    TableInput,
-)
+from ._query import options_from_query
 
 __all__ = [
     "ARROW_FILE",
     "ARROW_STREAM",
     "PARQUET",
-    "QUERY_PARAMETERS",
-    "SECTIONS",
-    "AssessOptions",
-    "AssessRequest",
-    "BatchRequest",
     "CodecError",
-    "ComponentsOptions",
     "CorrelationData",
-    "CorrelationInput",
-    "CorrelationResponse",
     "Fault",
-    "Input",
     "InvalidRequest",
     "Limits",
     "MalformedBody",
     "MomentsData",
-    "MomentsInput",
-    "MomentsPart",
     "Origin",
     "Prepared",
-    "RidgeOptions",
     "TableData",
-    "TableInput",
     "TooLarge",
     "UnsupportedMediaType",
     "UnusableInput",
     "decode_assess",
     "decode_batch",
     "decode_table_body",
-    "escape",
-    "join",
     "options_from_query",
     "read_table",
     "run",

@@ -14,9 +14,9 @@ from knotwork.core import (
     from_table,
     merge_moments,
 )
+from knotwork_contract import AssessOptions
 
 from ._prepared import CorrelationData, MomentsData, Prepared, TableData
-from ._wire import AssessOptions
 
 __all__ = ["core_options", "run", "summarize"]
 

@@ -13,11 +13,18 @@ import msgspec
 import numpy as np
 from msgspec import Meta, Raw, Struct
 
-from knotwork_contract import join, msgspec_fault
+from knotwork_contract import (
+    AssessRequest,
+    CorrelationInput,
+    MomentsInput,
+    Name,
+    TableInput,
+    join,
+    msgspec_fault,
+)
 
 from ._errors import Fault, InvalidRequest, MalformedBody, TooLarge
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
-from ._wire import AssessRequest, CorrelationInput, MomentsInput, Name, TableInput
 
 __all__ = ["decode_assess", "decode_batch"]
 

@@ -12,9 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from knotwork.settings import DEFAULT_MAX_BATCH_ITEMS, DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS
-from knotwork_contract import join
-
-from ._wire import AssessOptions
+from knotwork_contract import QUERY_PARAMETERS, AssessOptions, join
 
 __all__ = ["CorrelationData", "Limits", "MomentsData", "Origin", "Prepared", "TableData"]
 
@@ -62,13 +60,10 @@ class MomentsData:
     terms: dict[str, list[str]] | None = None
 
 
-# The query parameter that carries each option, for requests whose options are in the query.
-_OPTION_PARAMETERS = {
-    "ridge/grid": "ridge_grid",
-    "components/rule": "components_rule",
-    "components/limit": "components_limit",
-}
-_INPUT_PARAMETERS = ("response", "weights")
+# The query parameter that carries each option or column name, for requests whose options are
+# in the query (the contract derives them from the Structs).
+_OPTION_PARAMETERS = {"/".join(p.path): p.name for p in QUERY_PARAMETERS if p.path[0] != "input"}
+_INPUT_PARAMETERS = tuple(p.path[1] for p in QUERY_PARAMETERS if p.path[0] == "input")
 
 
 @dataclass(frozen=True, slots=True)

@@ -12,10 +12,14 @@ column by column, so an error names its column (msgspec reports dictionary value
 
 from __future__ import annotations
 
-from typing import Annotated, Literal, get_args
+import sys
+from collections.abc import Mapping
+from typing import Annotated, Any, Literal, get_args
 
 import msgspec
 from msgspec import Meta, Raw, Struct
+
+from ._pointers import msgspec_fault
 
 __all__ = [
     "SECTIONS",
@@ -28,8 +32,11 @@ __all__ = [
     "Input",
     "MomentsInput",
     "MomentsPart",
+    "Name",
+    "OptionsError",
     "RidgeOptions",
     "TableInput",
+    "check_options",
 ]
 
 
@@ -261,9 +268,10 @@ class AssessOptions(_Wire, frozen=True):
         float,
         Meta(
             gt=1,
+            le=sys.float_info.max,
             description=(
-                "VIF above which a variable counts as redundant. A rule of thumb: common "
-                "practice is 5 or 10."
+                "VIF above which a variable counts as redundant (finite, above 1: every VIF is "
+                "at least 1). A rule of thumb: common practice is 5 or 10."
             ),
         ),
     ] = 5.0
@@ -329,3 +337,31 @@ class BatchRequest(_Wire, frozen=True):
         list[AssessRequest],
         Meta(min_length=1, description="The assessments; at most the configured batch limit."),
     ]
+
+
+class OptionsError(ValueError):
+    """An options document breaks the contract: where (a JSON pointer) and why.
+
+    The reason is msgspec's own sentence for the rule (for example "Expected `float` > 1.0"),
+    the same one the service answers with for the same value in a request.
+    """
+
+    def __init__(self, pointer: str, reason: str) -> None:
+        super().__init__(f"{reason} (at {pointer})")
+        self.pointer = pointer
+        self.reason = reason
+
+
+def check_options(document: Mapping[str, Any]) -> AssessOptions:
+    """Check an options document against :class:`AssessOptions` and return the Struct.
+
+    Raises
+    ------
+    OptionsError
+        The first rule it breaks, with a pointer such as ``/options/threshold``.
+    """
+    try:
+        return msgspec.convert(document, AssessOptions)
+    except msgspec.ValidationError as exc:
+        pointer, reason = msgspec_fault(exc, "/options")
+        raise OptionsError(pointer, reason) from None
