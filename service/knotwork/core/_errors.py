@@ -11,7 +11,8 @@ Hierarchy::
     ├── InputError            the input cannot be used as given
     │   ├── MissingValuesError    missing values under ``missing="reject"``
     │   ├── MatrixError           not a valid correlation or covariance matrix
-    │   └── TooFewDataError       too few observations or predictors
+    │   ├── TooFewDataError       too few observations or predictors
+    │   └── FitError              a model cannot be fitted to the data (separation, no convergence)
     └── OptionError           an option is unknown, out of range or inconsistent with the input
 """
 
@@ -78,6 +79,13 @@ class TooFewDataError(InputError):
     """Too few observations or predictors for the diagnostics to exist."""
 
     kind = "too-few-data"
+
+
+class FitError(InputError):
+    """A model cannot be fitted to the data as given: its maximum-likelihood estimate does not
+    exist (separation of a binary response) or the iteration did not converge."""
+
+    kind = "fit-failed"
 
 
 class OptionError(KnotworkError):
