@@ -10,6 +10,7 @@ from numpy.testing import assert_allclose
 from scipy.special import expit
 
 from knotwork.core import (
+    INTERCEPT_NAME,
     InputError,
     Interrupted,
     MissingValuesError,
@@ -313,7 +314,7 @@ def test_working_weights_are_the_family_formula_at_the_fit(family, y, power, wei
     prior = np.linspace(0.5, 2.0, N)
     fit = fit_glm(x, y, family=family, var_power=power, prior_weights=prior)
     assert fit.converged and fit.n == N and fit.n_coefficients == 4 and fit.rank == 4
-    assert fit.names == ("(intercept)", "x0", "x1", "x2")
+    assert fit.names == (INTERCEPT_NAME, "x0", "x1", "x2")
     # Same function at the same coefficients up to the IRLS tolerance on eta (1e-9).
     assert_allclose(fit.weights, prior * weight(_mu(fit, x)), rtol=1e-8)
 
@@ -447,7 +448,7 @@ def test_summary_is_the_weighted_centred_design() -> None:
     cross, names = s.design_crossproducts(intercept=True)
     ones = np.c_[np.ones(N), x]
     expected = (ones * w[:, None]).T @ ones * (N / w.sum())
-    assert names == ("(intercept)", "x0", "x1", "x2")
+    assert names == (INTERCEPT_NAME, "x0", "x1", "x2")
     assert_allclose(cross, expected, rtol=1e-10)
 
 

@@ -17,6 +17,8 @@ import numpy as np
 import scipy.linalg
 from scipy.special import expit, xlogy
 
+from knotwork_contract import escape as esc
+
 from ._errors import (
     FitError,
     InputError,
@@ -25,7 +27,6 @@ from ._errors import (
     Problem,
     TooFewDataError,
 )
-from ._errors import pointer_escape as esc
 from ._interrupt import checkpoint
 from ._notices import Notice, notice
 from ._summary import (
@@ -109,7 +110,7 @@ class GlmFit:
     intercept
         Whether the model has an intercept.
     names
-        Coefficient names, ``"(intercept)"`` first when there is one.
+        Coefficient names, ``"<constant>"`` (the reserved label) first when there is one.
     coefficients
         Estimates on the scale of the linear predictor, in the order of ``names``.
     weights
