@@ -6,6 +6,7 @@ OpenAPI document, and the client's local checks are derived from these declarati
 """
 
 from ._pointers import escape, join, msgspec_fault
+from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
 from ._requests import (
     SECTIONS,
@@ -39,6 +40,8 @@ __all__ = [
     "MomentsPart",
     "Name",
     "OptionsError",
+    "Problem",
+    "ProblemDocument",
     "QueryError",
     "QueryParameter",
     "RidgeOptions",

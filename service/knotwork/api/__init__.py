@@ -6,14 +6,12 @@
 
 from ._app import create_app
 from ._openapi import openapi_document
-from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, ApiError, ProblemDocument, ProblemError
+from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, ApiError
 
 __all__ = [
     "PROBLEM_BASE",
     "PROBLEM_MEDIA_TYPE",
     "ApiError",
-    "ProblemDocument",
-    "ProblemError",
     "create_app",
     "openapi_document",
 ]

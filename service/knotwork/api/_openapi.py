@@ -29,10 +29,10 @@ from litestar.openapi.spec import (
 )
 
 from knotwork.codecs import ARROW_FILE, ARROW_STREAM, PARQUET
-from knotwork_contract import QUERY_PARAMETERS, AssessRequest, BatchRequest
+from knotwork_contract import QUERY_PARAMETERS, AssessRequest, BatchRequest, ProblemDocument
 
 from ._examples import CORRELATION_EXAMPLE, MOMENTS_EXAMPLE, PARTS_EXAMPLE, TABLE_EXAMPLE
-from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES, ProblemDocument
+from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES
 
 __all__ = [
     "ASSESS_RESPONSES",

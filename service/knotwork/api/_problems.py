@@ -7,9 +7,8 @@ request, or ``/query/<parameter>``) and ``request_id`` (also in the ``X-Request-
 
 Sources, all handled by :func:`problem_of`:
 
-- codec errors (:class:`knotwork.codecs.CodecError`): 400, 413, 415, 422;
-- core errors (:class:`knotwork.core.KnotworkError`): 422, pointers translated by the request's
-  :class:`~knotwork.codecs.Origin`;
+- codec errors (:class:`knotwork.codecs.CodecError`): 400, 413, 415, 422 (the core's errors
+  reach this layer as codec errors, their pointers already translated);
 - :class:`ApiError`, raised by this package: 401, 403, 413, 503 (saturated, time limit);
 - litestar's HTTP exceptions (routing: 404, 405; body limit: 413) with their headers kept;
 - anything else: 500, logged with its traceback (never its message, which could hold data).
@@ -25,7 +24,8 @@ import msgspec
 from litestar import Request, Response
 from litestar.exceptions import HTTPException
 
-from knotwork.codecs import CodecError, Origin
+from knotwork.codecs import CodecError
+from knotwork_contract import Problem, ProblemDocument
 
 from ._context import current_request_id
 
@@ -34,9 +34,6 @@ __all__ = [
     "PROBLEM_MEDIA_TYPE",
     "TITLES",
     "ApiError",
-    "Located",
-    "ProblemDocument",
-    "ProblemError",
     "handle_exception",
     "problem_bytes",
     "problem_of",
@@ -56,6 +53,7 @@ TITLES: Mapping[str, str] = {
     "missing-values": "The input has missing values",
     "invalid-matrix": "A matrix is not a valid correlation or covariance matrix",
     "too-few-data": "Too few observations or predictors",
+    "fit-failed": "The model cannot be fitted to the data",
     "invalid-option": "An option is out of range or does not fit the input",
     "unauthorized": "A bearer token is required",
     "forbidden": "The bearer token is not accepted",
@@ -89,50 +87,6 @@ _STATUS_SLUGS = {
 _KEPT_HEADERS = ("allow", "connection", "retry-after", "www-authenticate")
 
 
-class ProblemError(msgspec.Struct, frozen=True, kw_only=True):
-    """Where a request is wrong and why.
-
-    Attributes
-    ----------
-    pointer
-        JSON pointer (RFC 6901) into the request document (``/input/columns/x/3``), a column
-        of a binary table (``/columns/x``) or a query parameter (``/query/threshold``); ``""``
-        for the whole body.
-    reason
-        What was expected and what came, in one sentence.
-    """
-
-    pointer: str
-    reason: str
-
-
-class ProblemDocument(msgspec.Struct, frozen=True, kw_only=True):
-    """An error (RFC 9457), described for machines (``type``, ``errors``) and people.
-
-    Attributes
-    ----------
-    type
-        Stable URI of the kind of error; match on it rather than on the wording.
-    title
-        Short, fixed summary of the kind of error.
-    status
-        The HTTP status code.
-    detail
-        This occurrence, in one sentence: what was wrong and how to fix it.
-    errors
-        Each offending field with its pointer and reason (empty when no field is at fault).
-    request_id
-        The request's id, as in the X-Request-ID header and the service's logs.
-    """
-
-    type: str
-    title: str
-    status: int
-    detail: str
-    errors: list[ProblemError] = msgspec.field(default_factory=list)
-    request_id: str | None = None
-
-
 class ApiError(Exception):
     """An error this package raises, with its status, slug, detail, faults and headers."""
 
@@ -141,7 +95,7 @@ class ApiError(Exception):
         status: int,
         kind: str,
         detail: str,
-        errors: list[ProblemError] | None = None,
+        errors: list[Problem] | None = None,
         headers: Mapping[str, str] | None = None,
     ) -> None:
         super().__init__(detail)
@@ -152,16 +106,7 @@ class ApiError(Exception):
         self.headers = dict(headers or {})
 
 
-class Located(Exception):
-    """A core error together with the origin of the request it is about."""
-
-    def __init__(self, error: Exception, origin: Origin) -> None:
-        super().__init__(type(error).__name__)
-        self.error = error
-        self.origin = origin
-
-
-def _document(status: int, kind: str, detail: str, errors: list[ProblemError]) -> ProblemDocument:
+def _document(status: int, kind: str, detail: str, errors: list[Problem]) -> ProblemDocument:
     return ProblemDocument(
         type=PROBLEM_BASE + kind,
         title=TITLES.get(kind, TITLES["http-error"]),
@@ -178,42 +123,12 @@ def problem_bytes(status: int, kind: str, detail: str) -> bytes:
     return msgspec.json.encode(_document(status, kind, detail, []))
 
 
-def _core_error_types() -> tuple[type[Exception], ...]:
-    # Imported lazily so that the HTTP layer's error mapping does not pull the numerics in.
-    from knotwork.core import KnotworkError
-
-    return (KnotworkError,)
-
-
-def problem_of(
-    exc: BaseException, origin: Origin | None = None
-) -> tuple[ProblemDocument, dict[str, str]]:
-    """The problem document and response headers for an exception.
-
-    Parameters
-    ----------
-    exc
-        Any exception raised while answering a request.
-    origin
-        Where the request's input and options live, for core errors raised outside a
-        :class:`Located` wrapper (batch items).
-    """
-    if isinstance(exc, Located):
-        return problem_of(exc.error, exc.origin)
+def problem_of(exc: BaseException) -> tuple[ProblemDocument, dict[str, str]]:
+    """The problem document and response headers for an exception raised answering a request."""
     if isinstance(exc, ApiError):
         return _document(exc.status, exc.kind, exc.detail, exc.errors), exc.headers
     if isinstance(exc, CodecError):
-        errors = [ProblemError(pointer=f.pointer, reason=f.reason) for f in exc.problems]
-        return _document(exc.status, exc.kind, exc.message, errors), {}
-    if isinstance(exc, _core_error_types()):
-        where = origin or Origin()
-        scope = getattr(exc, "scope", "input")
-        errors = [
-            ProblemError(pointer=where.locate(scope, p.pointer), reason=p.reason)
-            for p in getattr(exc, "problems", ())
-        ]
-        message = getattr(exc, "message", str(exc))
-        return _document(422, getattr(exc, "kind", "invalid-input"), message, errors), {}
+        return _document(exc.status, exc.kind, exc.message, list(exc.problems)), {}
     if isinstance(exc, HTTPException):
         status = exc.status_code
         if status >= 500:

@@ -20,7 +20,6 @@ from knotwork.codecs import (
     ARROW_STREAM,
     PARQUET,
     CodecError,
-    Fault,
     InvalidRequest,
     Limits,
     Origin,
@@ -30,7 +29,8 @@ from knotwork.codecs import (
     decode_table_body,
     run,
 )
-from knotwork.core import Assessment, KnotworkError
+from knotwork.core import Assessment
+from knotwork_contract import Problem, ProblemDocument
 
 from ._context import current_request
 from ._metrics import COMPUTE_SECONDS
@@ -41,7 +41,7 @@ from ._openapi import (
     BatchOperation,
     openapi_document,
 )
-from ._problems import ApiError, Located, ProblemDocument, problem_of
+from ._problems import ApiError, problem_of
 from ._work import WorkPool, read_body
 
 __all__ = ["BatchResponse", "Health", "Readiness", "assess", "assess_batch", "healthz", "readyz"]
@@ -100,7 +100,7 @@ def _media_type(request: Request[Any, Any, Any], accepted: tuple[str, ...]) -> s
         return media
     given = media or "none"
     reason = f"unsupported content type {given}; send one of: {', '.join(accepted)}"
-    raise UnsupportedMediaType(reason, [Fault("", reason)])
+    raise UnsupportedMediaType(reason, [Problem("", reason)])
 
 
 def _record(route: str, queue_s: float, compute_s: float, **fields: str | int) -> None:
@@ -117,10 +117,7 @@ def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> As
         prepared = decode_assess(body, limits)
     else:
         prepared = decode_table_body(body, media, query, limits)
-    try:
-        return run(prepared)
-    except KnotworkError as exc:
-        raise Located(exc, prepared.origin) from None
+    return run(prepared)
 
 
 def _assess_many(
@@ -141,8 +138,8 @@ def _assess_many(
             continue
         try:
             results.append(run(decode_assess(raw, limits, base=origin.base)))
-        except (CodecError, KnotworkError) as exc:
-            results.append(problem_of(exc, origin)[0])
+        except CodecError as exc:
+            results.append(problem_of(exc)[0])
         except Exception as exc:  # one item's fault must not sink the others
             results.append(problem_of(exc)[0])
     return BatchResponse(results=results)
@@ -186,7 +183,7 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
     query: bytes = request.scope.get("query_string", b"")
     if media == JSON and query:
         reason = "a JSON body carries its options in the body; remove the query parameters"
-        raise InvalidRequest(reason, [Fault("/query", reason)])
+        raise InvalidRequest(reason, [Problem("/query", reason)])
     pool: WorkPool = state.pool
     body, ticket = await _admitted_body(request, pool)
     result, queue_s, compute_s = await pool.run(
@@ -216,7 +213,7 @@ async def assess_batch(request: Request[Any, Any, Any]) -> BatchResponse:
     _media_type(request, (JSON,))
     if request.scope.get("query_string"):
         reason = "a batch carries its options in each item; remove the query parameters"
-        raise InvalidRequest(reason, [Fault("/query", reason)])
+        raise InvalidRequest(reason, [Problem("/query", reason)])
     pool: WorkPool = state.pool
     body, ticket = await _admitted_body(request, pool)
     timeout_s = pool.timeout_s

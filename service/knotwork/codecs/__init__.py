@@ -8,7 +8,6 @@ into a :class:`Prepared` request or raises a :class:`CodecError` that points at 
 from ._arrow import ARROW_FILE, ARROW_STREAM, PARQUET, decode_table_body, read_table, table_data
 from ._errors import (
     CodecError,
-    Fault,
     InvalidRequest,
     MalformedBody,
     TooLarge,
@@ -25,7 +24,6 @@ __all__ = [
     "PARQUET",
     "CodecError",
     "CorrelationData",
-    "Fault",
     "InvalidRequest",
     "Limits",
     "MalformedBody",

@@ -16,9 +16,9 @@ import pyarrow as pa
 import pyarrow.ipc
 import pyarrow.parquet as pq
 
-from knotwork_contract import join
+from knotwork_contract import Problem, join
 
-from ._errors import Fault, MalformedBody, TooLarge, UnusableInput
+from ._errors import MalformedBody, TooLarge, UnusableInput
 from ._prepared import Limits, Origin, Prepared, TableData
 from ._query import options_from_query
 
@@ -42,7 +42,7 @@ def _cells_guard(limits: Limits | None, columns: int) -> Callable[[int], None]:
                 f"more than the limit of {limits.max_cells} numbers in the table; send a sample "
                 "of the rows, or a summary (correlation or moments) computed on your side"
             )
-            raise TooLarge("too-many-cells", reason, [Fault("/columns", reason)])
+            raise TooLarge("too-many-cells", reason, [Problem("/columns", reason)])
 
     return check
 
@@ -197,13 +197,13 @@ def table_data(
     names = table.schema.names
     if len(names) > limits.max_columns:
         reason = f"{len(names)} columns is more than the limit of {limits.max_columns}"
-        raise TooLarge("too-many-columns", reason, [Fault("/columns", reason)])
+        raise TooLarge("too-many-columns", reason, [Problem("/columns", reason)])
     if table.num_rows * len(names) > limits.max_cells:
         reason = (
             f"{table.num_rows} rows x {len(names)} columns is more than the limit of "
             f"{limits.max_cells} numbers; send a sample of the rows, or a summary"
         )
-        raise TooLarge("too-many-cells", reason, [Fault("/columns", reason)])
+        raise TooLarge("too-many-cells", reason, [Problem("/columns", reason)])
     seen: set[str] = set()
     columns: dict[str, np.ndarray] = {}
     categorical: dict[str, list[str | None]] = {}

@@ -6,6 +6,7 @@ from dataclasses import replace
 
 from knotwork.core import (
     Assessment,
+    KnotworkError,
     Options,
     Summary,
     assess,
@@ -14,8 +15,9 @@ from knotwork.core import (
     from_table,
     merge_moments,
 )
-from knotwork_contract import AssessOptions
+from knotwork_contract import AssessOptions, Problem
 
+from ._errors import UnusableInput
 from ._prepared import CorrelationData, MomentsData, Prepared, TableData
 
 __all__ = ["core_options", "run", "summarize"]
@@ -82,8 +84,13 @@ def run(prepared: Prepared) -> Assessment:
 
     Raises
     ------
-    KnotworkError
-        For input or options the core cannot use (pointers relative to the core's documents;
-        ``prepared.origin.locate`` translates them).
+    UnusableInput
+        For input or options the core cannot use: the core's error, its kind kept and its
+        pointers translated into the request the client sent (``prepared.origin``).
     """
-    return assess(summarize(prepared), core_options(prepared.options))
+    try:
+        return assess(summarize(prepared), core_options(prepared.options))
+    except KnotworkError as exc:
+        where = prepared.origin
+        problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]
+        raise UnusableInput(exc.message, problems, kind=exc.kind) from None

@@ -2,8 +2,10 @@
 
 Every error subclasses :class:`ValueError` and carries ``kind`` (a stable slug; the HTTP layer
 builds the problem ``type`` from it), ``status`` (the HTTP status it stands for), a one-line
-``message`` and ``problems``: :class:`Fault` entries with a JSON pointer into the request (or
-``/query/<parameter>`` for a query parameter) and a reason.
+``message`` and ``problems``: the contract's :class:`~knotwork_contract.Problem` records, each
+a JSON pointer into the request (or ``/query/<parameter>`` for a query parameter) and a reason.
+The core's errors become :class:`UnusableInput` here (:func:`knotwork.codecs.run`), with their
+kind kept and their pointers translated, so the HTTP layer maps codec errors only.
 
 Hierarchy::
 
@@ -17,11 +19,10 @@ Hierarchy::
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from knotwork_contract import Problem
 
 __all__ = [
     "CodecError",
-    "Fault",
     "InvalidRequest",
     "MalformedBody",
     "TooLarge",
@@ -30,29 +31,29 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True, slots=True)
-class Fault:
-    """One thing wrong with a request: where (a JSON pointer, RFC 6901) and why."""
-
-    pointer: str
-    reason: str
-
-
 class CodecError(ValueError):
     """Base of the errors raised while reading a request."""
 
     kind = "invalid-request"
     status = 400
 
-    def __init__(self, message: str, problems: tuple[Fault, ...] | list[Fault] = ()) -> None:
+    def __init__(
+        self,
+        message: str,
+        problems: tuple[Problem, ...] | list[Problem] = (),
+        *,
+        kind: str | None = None,
+    ) -> None:
         super().__init__(message)
         self.message = message
-        self.problems: tuple[Fault, ...] = tuple(problems)
+        self.problems: tuple[Problem, ...] = tuple(problems)
+        if kind is not None:
+            self.kind = kind
 
     @classmethod
     def at(cls, pointer: str, reason: str) -> CodecError:
         """An error with a single fault whose reason is also the message."""
-        return cls(reason, [Fault(pointer, reason)])
+        return cls(reason, [Problem(pointer, reason)])
 
 
 class MalformedBody(CodecError):
@@ -82,10 +83,9 @@ class TooLarge(CodecError):
     status = 413
 
     def __init__(
-        self, kind: str, message: str, problems: tuple[Fault, ...] | list[Fault] = ()
+        self, kind: str, message: str, problems: tuple[Problem, ...] | list[Problem] = ()
     ) -> None:
-        super().__init__(message, problems)
-        self.kind = kind
+        super().__init__(message, problems, kind=kind)
 
 
 class UnsupportedMediaType(CodecError):

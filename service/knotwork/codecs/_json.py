@@ -18,12 +18,13 @@ from knotwork_contract import (
     CorrelationInput,
     MomentsInput,
     Name,
+    Problem,
     TableInput,
     join,
     msgspec_fault,
 )
 
-from ._errors import Fault, InvalidRequest, MalformedBody, TooLarge
+from ._errors import InvalidRequest, MalformedBody, TooLarge
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
 
 __all__ = ["decode_assess", "decode_batch"]
@@ -111,15 +112,15 @@ def _parse(decoder: msgspec.json.Decoder, body: Buffer, prefix: str):  # type: i
         return decoder.decode(body)
     except msgspec.ValidationError as exc:
         pointer, reason = msgspec_fault(exc, prefix)
-        raise InvalidRequest(reason, [Fault(pointer, reason)]) from None
+        raise InvalidRequest(reason, [Problem(pointer, reason)]) from None
     except msgspec.DecodeError as exc:
         reason = f"the body is not valid JSON: {exc}"
-        raise MalformedBody(reason, [Fault(prefix, reason)]) from None
+        raise MalformedBody(reason, [Problem(prefix, reason)]) from None
     except RecursionError:
         # msgspec bounds its own nesting depth, but a value kept raw and decoded later (a
         # column, a term, a batch item) can still exhaust the interpreter's stack.
         reason = "the JSON is nested too deeply; no valid request nests more than a few levels"
-        raise MalformedBody(reason, [Fault(prefix, reason)]) from None
+        raise MalformedBody(reason, [Problem(prefix, reason)]) from None
 
 
 def decode_assess(body: Buffer, limits: Limits, *, base: str = "") -> Prepared:
@@ -140,7 +141,7 @@ def decode_assess(body: Buffer, limits: Limits, *, base: str = "") -> Prepared:
         MalformedBody, InvalidRequest or TooLarge, each pointing at the fault.
     """
     if not body:
-        raise MalformedBody(_EMPTY_BODY, [Fault(base, _EMPTY_BODY)])
+        raise MalformedBody(_EMPTY_BODY, [Problem(base, _EMPTY_BODY)])
     request: AssessRequest = _parse(_REQUEST, body, base)
     inp = request.input
     at = base + "/input"
@@ -164,7 +165,7 @@ def decode_batch(body: Buffer, limits: Limits) -> list[Raw]:
     """
     if not body:
         reason = 'the body is empty; send {"items": [{"input": {...}, "options": {...}}, ...]}'
-        raise MalformedBody(reason, [Fault("", reason)])
+        raise MalformedBody(reason, [Problem("", reason)])
     # Count the items before building any: a body of millions of tiny items would otherwise
     # cost tens of bytes of memory for every two bytes sent.
     shell: _UncountedBatch = _parse(_BATCH_SHELL, body, "")
@@ -175,7 +176,7 @@ def decode_batch(body: Buffer, limits: Limits) -> list[Raw]:
         reason = (
             f"{count} items is more than the limit of {limits.max_batch_items}; split the batch"
         )
-        raise TooLarge("too-many-items", reason, [Fault("/items", reason)])
+        raise TooLarge("too-many-items", reason, [Problem("/items", reason)])
     batch: _RawBatch = _parse(_BATCH, body, "")
     return batch.items
 
@@ -185,7 +186,7 @@ def _too_many_columns(count: int, limits: Limits, pointer: str) -> None:
         reason = (
             f"{count} columns is more than the limit of {limits.max_columns}; send fewer variables"
         )
-        raise TooLarge("too-many-columns", reason, [Fault(pointer, reason)])
+        raise TooLarge("too-many-columns", reason, [Problem(pointer, reason)])
 
 
 def _too_many_cells(cells: int, limits: Limits, pointer: str) -> None:
@@ -194,7 +195,7 @@ def _too_many_cells(cells: int, limits: Limits, pointer: str) -> None:
             f"more than the limit of {limits.max_cells} numbers in the input; send a sample "
             "of the rows, or a summary (correlation or moments) computed on your side"
         )
-        raise TooLarge("too-many-cells", reason, [Fault(pointer, reason)])
+        raise TooLarge("too-many-cells", reason, [Problem(pointer, reason)])
 
 
 def _table(inp: TableInput, limits: Limits, at: str) -> TableData:
@@ -253,7 +254,7 @@ def _moments(inp: MomentsInput, limits: Limits, at: str) -> MomentsData:
     if inp.parts is not None:
         if given:
             reason = f"give either parts or n, means and covariance, not both (got {given[0]})"
-            raise InvalidRequest(reason, [Fault(f"{at}/{given[0]}", reason)])
+            raise InvalidRequest(reason, [Problem(f"{at}/{given[0]}", reason)])
         _too_many_cells(
             sum(_matrix_cells(part.covariance) for part in inp.parts), limits, at + "/parts"
         )
@@ -266,7 +267,7 @@ def _moments(inp: MomentsInput, limits: Limits, at: str) -> MomentsData:
     missing = [key for key, value in single.items() if value is None]
     if missing:
         reason = f"Object missing required field `{missing[0]}` (or give parts instead)"
-        raise InvalidRequest(reason, [Fault(f"{at}/{missing[0]}", reason)])
+        raise InvalidRequest(reason, [Problem(f"{at}/{missing[0]}", reason)])
     assert inp.covariance is not None  # for the type checker: checked just above
     _too_many_cells(_matrix_cells(inp.covariance), limits, at + "/covariance")
     return MomentsData(

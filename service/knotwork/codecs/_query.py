@@ -14,13 +14,14 @@ import msgspec
 
 from knotwork_contract import (
     AssessOptions,
+    Problem,
     QueryError,
     join,
     msgspec_fault,
     parse_query,
 )
 
-from ._errors import Fault, InvalidRequest
+from ._errors import InvalidRequest
 from ._prepared import Origin
 
 __all__ = ["options_from_query"]
@@ -28,7 +29,7 @@ __all__ = ["options_from_query"]
 
 def _fail(parameter: str, reason: str) -> InvalidRequest:
     pointer = join("query", parameter)
-    return InvalidRequest(f"query parameter {parameter}: {reason}", [Fault(pointer, reason)])
+    return InvalidRequest(f"query parameter {parameter}: {reason}", [Problem(pointer, reason)])
 
 
 def options_from_query(query: str | bytes) -> tuple[AssessOptions, str | None, str | None]:
@@ -57,6 +58,6 @@ def options_from_query(query: str | bytes) -> tuple[AssessOptions, str | None, s
         where = Origin(query=True).locate("options", pointer)
         parameter = where.removeprefix("/query/")
         raise InvalidRequest(
-            f"query parameter {parameter}: {reason}", [Fault(where, reason)]
+            f"query parameter {parameter}: {reason}", [Problem(where, reason)]
         ) from None
     return options, columns.get("response"), columns.get("weights")

@@ -3,7 +3,8 @@
 Every exception the core raises for bad input subclasses :class:`ValueError`, so a plain
 ``except ValueError`` still catches it, and carries a list of :class:`Problem` entries that
 say *where* (a JSON pointer relative to the input document, such as ``/columns/GNP`` or
-``/matrix/2/3``) and *why*. The HTTP layer maps these, in one place, to problem+json.
+``/matrix/2/3``) and *why*. The service's codecs translate the pointers into the caller's
+request (:mod:`knotwork.codecs`), and the HTTP layer answers with the one problem document.
 
 Hierarchy::
 
@@ -18,24 +19,7 @@ Hierarchy::
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
-
-@dataclass(frozen=True, slots=True)
-class Problem:
-    """One thing wrong with the input.
-
-    Attributes
-    ----------
-    pointer
-        JSON pointer (RFC 6901) relative to the input or options document, e.g. ``/n`` or
-        ``/columns/floor_area``; the HTTP layer prefixes ``/input`` or ``/options``.
-    reason
-        What was expected, what came, and how to fix it, in one sentence.
-    """
-
-    pointer: str
-    reason: str
+from knotwork_contract import Problem
 
 
 class KnotworkError(ValueError):
