@@ -103,5 +103,5 @@ def test_declared_dependencies_are_the_light_ones():
     tomllib = pytest.importorskip("tomllib")
     meta = tomllib.loads((CLIENT_ROOT / "pyproject.toml").read_text())["project"]
     required = sorted(d.split(">")[0].split("=")[0].split("[")[0] for d in meta["dependencies"])
-    assert required == ["anyio", "httpx", "msgspec", "numpy", "threadpoolctl"]
+    assert required == ["anyio", "httpx", "knotwork-contract", "msgspec", "numpy", "threadpoolctl"]
     assert meta["scripts"] == {"knotwork-screen": "knotwork_client._cli:main"}
