@@ -1,8 +1,9 @@
 """The knotwork wire contract, shared by the service and its clients.
 
-Everything a request may contain is declared here once, as msgspec Structs whose constraints,
-defaults and descriptions are the rules; the service's decoders, its query-parameter parser and
-OpenAPI document, and the client's local checks are derived from these declarations.
+Everything a request may contain and every record of an answer is declared here once, as msgspec
+Structs whose constraints, defaults and descriptions are the rules; the service's decoders, its
+query-parameter parser, its core's results and its OpenAPI document, and the client's local
+checks and decoders are derived from these declarations.
 """
 
 from ._pointers import escape, join, msgspec_fault
@@ -25,27 +26,71 @@ from ._requests import (
     TableInput,
     check_options,
 )
+from ._results import (
+    RESULT_TYPES,
+    Assessment,
+    Comparison,
+    Components,
+    Conditioning,
+    Dependency,
+    FarrarGlauber,
+    Notice,
+    RemedyRow,
+    Removal,
+    RemovalStep,
+    RepairReport,
+    Ridge,
+    RidgeChoice,
+    RidgePoint,
+    StillHigh,
+    Tangle,
+    TermInflation,
+    Tests,
+    VariableF,
+    VariableInflation,
+)
 
 __all__ = [
     "QUERY_PARAMETERS",
+    "RESULT_TYPES",
     "SECTIONS",
     "AssessOptions",
     "AssessRequest",
+    "Assessment",
     "BatchRequest",
+    "Comparison",
+    "Components",
     "ComponentsOptions",
+    "Conditioning",
     "CorrelationInput",
     "CorrelationResponse",
+    "Dependency",
+    "FarrarGlauber",
     "Input",
     "MomentsInput",
     "MomentsPart",
     "Name",
+    "Notice",
     "OptionsError",
     "Problem",
     "ProblemDocument",
     "QueryError",
     "QueryParameter",
+    "RemedyRow",
+    "Removal",
+    "RemovalStep",
+    "RepairReport",
+    "Ridge",
+    "RidgeChoice",
     "RidgeOptions",
+    "RidgePoint",
+    "StillHigh",
     "TableInput",
+    "Tangle",
+    "TermInflation",
+    "Tests",
+    "VariableF",
+    "VariableInflation",
     "check_options",
     "escape",
     "join",

@@ -10,7 +10,7 @@ import msgspec
 import pytest
 
 from knotwork.api.openapi import render
-from knotwork_contract import AssessRequest, BatchRequest
+from knotwork_contract import RESULT_TYPES, AssessRequest, BatchRequest
 
 COMMITTED = Path(__file__).resolve().parents[2] / "openapi" / "openapi.json"
 
@@ -118,3 +118,23 @@ def test_result_fields_carry_their_meaning(document: dict[str, Any]) -> None:
         assert schema["description"]
         for field, prop in schema["properties"].items():
             assert prop.get("description"), f"{name}.{field} has no description"
+
+
+def test_result_components_are_the_contract_records(document: dict[str, Any]) -> None:
+    # The contract's field order is the order of the keys in every answer and in the documented
+    # component; every field is sent, so every field is required (the contract's defaults are
+    # for clients decoding shortened answers, and are not documented as defaults).
+    schemas = document["components"]["schemas"]
+    for record in RESULT_TYPES:
+        schema = schemas[record.__name__]
+        assert list(schema["properties"]) == list(record.__struct_fields__), record.__name__
+        assert schema["required"] == sorted(record.__struct_fields__), record.__name__
+        assert not any("default" in prop for prop in schema["properties"].values())
+
+
+def test_an_answer_has_the_documented_keys_in_order(document: dict[str, Any]) -> None:
+    answer = document["paths"]["/v1/assess"]["post"]["responses"]["200"]["content"]
+    example = answer["application/json"]["examples"]["correlation"]["value"]
+    schemas = document["components"]["schemas"]
+    assert list(example) == list(schemas["Assessment"]["properties"])
+    assert list(example["variables"][0]) == list(schemas["VariableInflation"]["properties"])

@@ -120,8 +120,9 @@ def assessment_for(names: list[str], r: np.ndarray, n: float, kind: str, thresho
             {
                 "name": nm,
                 "vif": v,
-                "tolerance": None if v is None else 1 / v,
-                "r_squared": None if v is None else 1 - 1 / v,
+                # As the contract says for an aliased variable: tolerance 0, R^2 1.
+                "tolerance": 0.0 if v is None else 1 / v,
+                "r_squared": 1.0 if v is None else 1 - 1 / v,
                 "se_inflation": None if v is None else math.sqrt(v),
                 "above_threshold": v is None or v > threshold,
                 "aliased": v is None,

@@ -101,7 +101,8 @@ DOCUMENT = {
         "condition_indices": [1.0, 2.5, 5.0],
         "loadings": [[0.6, 0.6, 0.5]],
         "kept": [0, 1],
-        "rule": {"name": "cumulative", "limit": 0.9},
+        "rule": "cumulative",  # the wire shape: the rule and its limit side by side
+        "limit": 0.9,
         "coefficients": None,
     },
     "warnings": [{"code": "exact_dependency", "message": "flour_kg is aliased"}],

@@ -514,8 +514,8 @@ def test_fields_are_plain_values(longley_data):
     result = removal_sequence(r, names, threshold=10, r_xy=r_xy, protect=["GNP"])
 
     def walk(obj):
-        if hasattr(obj, "__dataclass_fields__"):
-            for f in obj.__dataclass_fields__:
+        if hasattr(obj, "__struct_fields__"):
+            for f in obj.__struct_fields__:
                 walk(getattr(obj, f))
         elif isinstance(obj, tuple):
             for v in obj:

@@ -29,7 +29,13 @@ from litestar.openapi.spec import (
 )
 
 from knotwork.codecs import ARROW_FILE, ARROW_STREAM, PARQUET
-from knotwork_contract import QUERY_PARAMETERS, AssessRequest, BatchRequest, ProblemDocument
+from knotwork_contract import (
+    QUERY_PARAMETERS,
+    RESULT_TYPES,
+    AssessRequest,
+    BatchRequest,
+    ProblemDocument,
+)
 
 from ._examples import CORRELATION_EXAMPLE, MOMENTS_EXAMPLE, PARTS_EXAMPLE, TABLE_EXAMPLE
 from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES
@@ -320,9 +326,14 @@ def _numpydoc(cls: type) -> tuple[str, dict[str, str]]:
 
 
 def _documented_classes(names: list[str]) -> dict[str, type]:
-    # Result records live in the core's modules and in this package; a component is matched
-    # to the class of the same name (the names are unique, checked when merging).
-    modules = [m for n, m in sorted(sys.modules.items()) if n.startswith("knotwork.")]
+    # Result records live in the contract, request records in the codecs, the rest in this
+    # package; a component is matched to the class of the same name (the names are unique,
+    # checked when merging).
+    modules = [
+        m
+        for n, m in sorted(sys.modules.items())
+        if n.startswith(("knotwork_contract", "knotwork."))
+    ]
     found: dict[str, type] = {}
     for name in names:
         for module in modules:
@@ -347,6 +358,22 @@ def _describe(schemas: dict[str, Any]) -> None:
                 prop["description"] = fields[field_name]
 
 
+def _sent_in_full(schemas: dict[str, Any]) -> None:
+    """Mark every field of a result record required and drop the defaults litestar copied.
+
+    The service sends every field of every record it answers with; the contract's defaults
+    only let a client decode an answer that lacks a field, and say nothing about what is sent.
+    """
+    for record in RESULT_TYPES:
+        schema = schemas.get(record.__name__)
+        if schema is None:
+            continue
+        properties = schema.get("properties", {})
+        for prop in properties.values():
+            prop.pop("default", None)
+        schema["required"] = sorted(properties)
+
+
 def build_document(app: Litestar) -> dict[str, Any]:
     """Build the complete OpenAPI document of ``app`` (uncached; see :func:`openapi_document`)."""
     document: dict[str, Any] = app.openapi_schema.to_schema()
@@ -357,6 +384,7 @@ def build_document(app: Litestar) -> dict[str, Any]:
             raise RuntimeError(f"two OpenAPI components are named {name!r}")
         schemas[name] = schema
     document["components"]["schemas"] = dict(sorted(schemas.items()))
+    _sent_in_full(document["components"]["schemas"])
     _describe(document["components"]["schemas"])
 
     for path_item in document.get("paths", {}).values():

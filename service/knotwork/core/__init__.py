@@ -1,18 +1,38 @@
 """The numerical core of knotwork: pure numpy/scipy, no web imports.
 
 Build a :class:`Summary` with :func:`from_table`, :func:`from_frame`, :func:`from_correlation`,
-:func:`from_moments` or :func:`merge_moments`, then call :func:`assess`.
+:func:`from_moments` or :func:`merge_moments`, then call :func:`assess`. The result records
+(:class:`Assessment` and its parts) are the shared contract's (:mod:`knotwork_contract`),
+re-exported here.
 """
 
-from ._assess import SECTIONS, Assessment, Options, assess, check_options
-from ._components import Components, principal_components
-from ._conditioning import Conditioning, Tangle, condition_diagnostics
-from ._dependencies import (
+from knotwork_contract import (
+    Assessment,
+    Comparison,
+    Components,
+    Conditioning,
     Dependency,
-    DependencyReport,
-    Spectrum,
-    find_dependencies,
+    FarrarGlauber,
+    Notice,
+    RemedyRow,
+    Removal,
+    RemovalStep,
+    RepairReport,
+    Ridge,
+    RidgeChoice,
+    RidgePoint,
+    StillHigh,
+    Tangle,
+    TermInflation,
+    Tests,
+    VariableF,
+    VariableInflation,
 )
+
+from ._assess import SECTIONS, Options, assess, check_options
+from ._components import principal_components
+from ._conditioning import condition_diagnostics
+from ._dependencies import DependencyReport, Spectrum, find_dependencies
 from ._errors import (
     InputError,
     KnotworkError,
@@ -22,24 +42,18 @@ from ._errors import (
     Problem,
     TooFewDataError,
 )
-from ._inflation import (
-    TermInflation,
-    VariableInflation,
-    generalized_inflation,
-    variance_inflation,
-)
+from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
-from ._notices import CAUTIONS, CODES, Notice
-from ._remedies import Comparison, RemedyRow, compare_remedies
-from ._removal import Removal, RemovalStep, StillHigh, removal_sequence
+from ._notices import CAUTIONS, CODES
+from ._remedies import compare_remedies
+from ._removal import removal_sequence
 from ._repair import Repair, nearest_correlation
-from ._ridge import Ridge, RidgeChoice, RidgePoint, default_grid, ridge_analysis
-from ._significance import FarrarGlauber, Tests, VariableF, collinearity_tests
+from ._ridge import default_grid, ridge_analysis
+from ._significance import collinearity_tests
 from ._summary import (
     INTERCEPT_NAME,
     MISSING_POLICIES,
     REPAIR_POLICIES,
-    RepairReport,
     Summary,
     Term,
     from_correlation,

@@ -4,29 +4,25 @@ from __future__ import annotations
 
 import math
 from collections.abc import Collection
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import TypedDict
 
 import numpy as np
 
-from ._components import (
-    LIMIT_WITH_VIF_THRESHOLD,
-    RULES,
-    VIF_THRESHOLD,
-    Components,
-    principal_components,
-)
-from ._conditioning import Conditioning, condition_diagnostics
-from ._dependencies import Dependency, DependencyReport, Spectrum, find_dependencies
+from knotwork_contract import Assessment, Conditioning, Notice, TermInflation
+
+from ._components import LIMIT_WITH_VIF_THRESHOLD, RULES, VIF_THRESHOLD, principal_components
+from ._conditioning import condition_diagnostics
+from ._dependencies import DependencyReport, Spectrum, find_dependencies
 from ._errors import OptionError, Problem
-from ._inflation import TermInflation, VariableInflation, generalized_inflation, variance_inflation
+from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
-from ._notices import CAUTIONS, Notice, notice
-from ._remedies import Comparison, compare_remedies
-from ._removal import Removal, removal_sequence
-from ._ridge import Ridge, ridge_analysis
-from ._significance import Tests, collinearity_tests
-from ._summary import RepairReport, Summary
+from ._notices import CAUTIONS, notice
+from ._remedies import compare_remedies
+from ._removal import removal_sequence
+from ._ridge import ridge_analysis
+from ._significance import collinearity_tests
+from ._summary import Summary
 
 #: Every section a caller can ask for; ``variables`` and ``dependencies`` are always computed.
 SECTIONS = (
@@ -102,71 +98,6 @@ class Options:
 
     def wants(self, section: str) -> bool:
         return self.sections is None or section in self.sections
-
-
-@dataclass(frozen=True, slots=True)
-class Assessment:
-    """The full collinearity assessment of one design.
-
-    Attributes
-    ----------
-    input_kind
-        ``"table"``, ``"correlation"`` or ``"moments"``.
-    n
-        Observations (or sum of weights) behind the summary.
-    p
-        Number of predictors (intercept not counted; categorical variables expanded).
-    response
-        The response's name, if one was given.
-    intercept
-        Whether the diagnostics assume a model with an intercept (centred) or not.
-    threshold
-        The VIF threshold the flags use (echoed).
-    variables
-        Per predictor: VIF, tolerance, R_j^2, standard-error inflation, flags.
-    terms
-        Per multi-column term: GVIF and scaled GVIF.
-    conditioning
-        Condition indices, variance-decomposition proportions and tangled sets.
-    tests
-        Determinant of R, Farrar-Glauber chi-square, per-variable F, partial correlations.
-    dependencies
-        Exact linear relations among the predictors, by name.
-    removal
-        Proposed removal sequence.
-    ridge
-        Ridge trace and choices of k.
-    components
-        Principal components and, with a response, principal-component regression.
-    comparison
-        Remedies side by side.
-    repair
-        What the nearest-matrix repair did, when it was used.
-    warnings
-        Numerical and input warnings, each with a stable code.
-    cautions
-        How to read these numbers: thresholds are rules of thumb; regulated models follow
-        local rules and qualified review.
-    """
-
-    input_kind: str
-    n: float
-    p: int
-    response: str | None
-    intercept: bool
-    threshold: float
-    variables: tuple[VariableInflation, ...]
-    terms: tuple[TermInflation, ...]
-    conditioning: Conditioning | None
-    tests: Tests | None
-    dependencies: tuple[Dependency, ...]
-    removal: Removal | None = None
-    ridge: Ridge | None = None
-    components: Components | None = None
-    comparison: Comparison | None = None
-    repair: RepairReport | None = None
-    warnings: tuple[Notice, ...] = ()
-    cautions: tuple[str, ...] = field(default=CAUTIONS)
 
 
 def check_options(options: Options, summary: Summary) -> None:
@@ -403,6 +334,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         comparison=comparison,
         repair=summary.repair,
         warnings=tuple(dict.fromkeys(notes)),
+        cautions=CAUTIONS,
     )
 
 

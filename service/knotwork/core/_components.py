@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
+
+from knotwork_contract import Components
 
 from ._dependencies import Spectrum
 from ._errors import InputError, OptionError
@@ -41,104 +42,6 @@ _RULE_TEXT = {
         "least {limit:g}, drop the rest"
     ),
 }
-
-
-@dataclass(frozen=True, slots=True)
-class Components:
-    """Principal components of the predictors and, with a response, the regression on them.
-
-    Attributes
-    ----------
-    eigenvalues
-        Eigenvalues l_k of the matrix (variances of the standardized components), largest first.
-    explained
-        Share of the total variance each component carries, l_k / sum l.
-    cumulative
-        Running sum of ``explained``.
-    condition_indices
-        sqrt(l_1 / l_k); None for a component with a zero eigenvalue (an exact dependency).
-    loadings
-        ``loadings[k]`` is component k's unit-length weight vector over the variables (variable
-        order); the sign makes its largest entry (in absolute value) positive.
-    variable_correlations
-        ``variable_correlations[k][j]`` = loading times sqrt(l_k): the correlation of variable
-        j with component k (with a cosine matrix, the cosine).
-    kept
-        Indices (into ``eigenvalues``, largest first) of the components the rule keeps: always
-        the leading ones, 0 to m - 1.
-    rule
-        ``"vif_threshold"``, ``"condition_index"`` or ``"cumulative"``.
-    limit
-        The limit of the rule (echoed): the VIF threshold for ``"vif_threshold"``.
-    rule_text
-        The rule in words.
-    vif
-        Variance inflation of the regression coefficients on the kept components,
-        diag(V_S L_S^-1 V_S'): the variance relative to an orthogonal design, as the VIF is for
-        OLS (they are equal when every component is kept); the ``"vif_threshold"`` rule keeps
-        them at or below its limit.
-    max_vif
-        The largest of them.
-    coefficients
-        Standardized coefficients b = V_S L_S^-1 V_S' r_xy in variable order (None without a
-        response).
-    coefficient_variances
-        Their variances, s^2 diag(V_S L_S^-1 V_S'), with s^2 as in ``variance_basis``, on the
-        standardized scale.
-    original_coefficients
-        Coefficients in the variables' own units, b_j sd_y / sd_j (None unless standard
-        deviations are given).
-    original_variances
-        Their variances, times (sd_y / sd_j)^2.
-    original_intercept
-        mean_y - sum_j beta_j mean_j (None unless means are given, or without intercept).
-    r_squared
-        Share of the response's sum of squares explained by the kept components.
-    r_squared_full
-        The same for all predictors (ordinary least squares).
-    r_squared_by_component
-        Share of the response's sum of squares each component explains alone,
-        (v_k' r_xy)^2 / l_k, for every component (they sum to ``r_squared_full``); it shows
-        when a dropped low-variance component matters for the response.
-    ols_coefficients
-        Standardized OLS coefficients R^-1 r_xy for comparison (None when an exact dependency
-        makes them not unique).
-    residual_variance
-        The residual variance s^2 used for ``coefficient_variances``, as a share of the
-        response's variance (1 - adjusted R^2 of the model it comes from).
-    variance_basis
-        ``"full_model"``: s^2 from the OLS fit on all predictors, (1 - R^2)/(n - p - 1), unbiased
-        when that model holds; ``"kept_components"``: s^2 = (1 - R_S^2)/(n - |S| - 1), used when
-        the full fit is not available (exact dependency or no residual df). n - 1 becomes n
-        without intercept.
-    notes
-        How to read the result.
-    """
-
-    eigenvalues: tuple[float, ...]
-    explained: tuple[float, ...]
-    cumulative: tuple[float, ...]
-    condition_indices: tuple[float | None, ...]
-    loadings: tuple[tuple[float, ...], ...]
-    variable_correlations: tuple[tuple[float, ...], ...]
-    kept: tuple[int, ...]
-    rule: str
-    limit: float
-    rule_text: str
-    vif: tuple[float, ...]
-    max_vif: float
-    coefficients: tuple[float, ...] | None
-    coefficient_variances: tuple[float, ...] | None
-    original_coefficients: tuple[float, ...] | None
-    original_variances: tuple[float, ...] | None
-    original_intercept: float | None
-    r_squared: float | None
-    r_squared_full: float | None
-    r_squared_by_component: tuple[float, ...] | None
-    ols_coefficients: tuple[float, ...] | None
-    residual_variance: float | None
-    variance_basis: str | None
-    notes: tuple[str, ...]
 
 
 _NOTES = (

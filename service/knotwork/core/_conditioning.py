@@ -3,88 +3,14 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 
 from knotwork.core._dependencies import NULL_RTOL, Spectrum
+from knotwork_contract import Conditioning, Tangle
 
 #: The bases a cross-product matrix can be given in; ``Conditioning.basis`` echoes one of them.
 BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation")
-
-
-@dataclass(frozen=True, slots=True)
-class Tangle:
-    """A near dependency: one component with a high index and two or more large proportions.
-
-    Attributes
-    ----------
-    index
-        The condition index of the component.
-    variables
-        Columns whose variance-decomposition proportion on this component exceeds the
-        proportion threshold, in column order.
-    proportions
-        Their proportions, in the same order.
-    """
-
-    index: float
-    variables: tuple[str, ...]
-    proportions: tuple[float, ...]
-
-
-@dataclass(frozen=True, slots=True)
-class Conditioning:
-    """Conditioning of a design: eigenvalues, condition indices, proportions, tangled sets.
-
-    Attributes
-    ----------
-    basis
-        Which matrix was decomposed: ``"scaled_with_intercept"`` (the uncentred cross-products
-        of the constant and the predictors, every column scaled to unit length),
-        ``"scaled_uncentred"`` (the same without a constant column) or ``"correlation"`` (the
-        predictors centred and scaled: the correlation matrix).
-    names
-        The columns the proportions refer to, in matrix order; ``"<constant>"`` comes first
-        when the constant column is included.
-    eigenvalues
-        Eigenvalues of the unit-diagonal cross-product matrix, largest first (the squared
-        singular values of the scaled design).
-    condition_number
-        The largest condition index; None when a null eigenvalue makes it infinite.
-    indices
-        Condition indices :math:`\\sqrt{\\lambda_1 / \\lambda_k}`, in eigenvalue order; None for
-        a null eigenvalue.
-    proportions
-        ``proportions[k][j]``: the share of column *j*'s coefficient variance that is due to
-        component *k* (each column's shares sum to 1 over the non-null components); a null
-        component's row is all None.
-    tangles
-        Components with an index above ``index_threshold`` and at least two proportions above
-        ``proportion_threshold``, largest index first.
-    index_threshold
-        The condition index above which a component counts as a near dependency (30 is common
-        practice, a rule of thumb).
-    proportion_threshold
-        The proportion above which a column counts as involved in a component (0.5 is common
-        practice, a rule of thumb).
-    null_rtol
-        Eigenvalues at or below ``null_rtol`` times the largest were treated as null.
-    null_dim
-        How many eigenvalues are null (exact dependencies, reported separately).
-    """
-
-    basis: str
-    names: tuple[str, ...]
-    eigenvalues: tuple[float, ...]
-    condition_number: float | None
-    indices: tuple[float | None, ...]
-    proportions: tuple[tuple[float | None, ...], ...]
-    tangles: tuple[Tangle, ...]
-    index_threshold: float
-    proportion_threshold: float
-    null_rtol: float = NULL_RTOL
-    null_dim: int = 0
 
 
 def condition_diagnostics(

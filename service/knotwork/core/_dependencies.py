@@ -8,6 +8,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from knotwork_contract import Dependency
+
 #: Eigenvalues at or below ``NULL_RTOL * largest eigenvalue`` span the null space: the design has
 #: an exact linear dependency there. A Gram matrix computed in double precision carries errors of
 #: about ``p * eps * lambda_max`` (1e-14 for p = 50), so the cut sits four orders above that and
@@ -50,30 +52,6 @@ class Spectrum:
         """Orthonormal basis of the (numerical) null space as columns, shape (p, null_dim)."""
         p = self.values.shape[0]
         return self.vectors[:, p - self.null_dim :]
-
-
-@dataclass(frozen=True, slots=True)
-class Dependency:
-    """One exact linear relation among predictors.
-
-    Attributes
-    ----------
-    variables
-        The variables in the relation; the first is the one it expresses through the others.
-    weights
-        Weights on the standardized variables, in the order of ``variables``:
-        ``sum_j weights[j] * (x_j - mean_j) / sd_j = 0`` in every row; the first weight is 1.
-    raw_weights
-        The same relation in original units, ``sum_j raw_weights[j] * x_j + raw_constant = 0``,
-        scaled so the first weight is 1 (None when only a correlation matrix is known).
-    raw_constant
-        The constant term of the original-unit relation (None without means).
-    """
-
-    variables: tuple[str, ...]
-    weights: tuple[float, ...]
-    raw_weights: tuple[float, ...] | None = None
-    raw_constant: float | None = None
 
 
 @dataclass(frozen=True, slots=True, eq=False)

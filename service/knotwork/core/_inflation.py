@@ -4,78 +4,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 
+from knotwork_contract import TermInflation, VariableInflation
+
 from ._dependencies import DependencyReport
 from ._linalg import inverse_spd, logdet_spd
-
-
-@dataclass(frozen=True, slots=True)
-class VariableInflation:
-    """Inflation of one predictor's coefficient variance.
-
-    Attributes
-    ----------
-    name
-        The predictor.
-    vif
-        Variance inflation factor :math:`1/(1 - R_j^2)`; None when the predictor is aliased
-        (in an exact dependency, where the VIF is infinite).
-    tolerance
-        :math:`1 - R_j^2 = 1/\\mathrm{VIF}_j` (0 when aliased).
-    r_squared
-        :math:`R_j^2` of the predictor regressed on all the others (1 when aliased).
-    se_inflation
-        :math:`\\sqrt{\\mathrm{VIF}_j}`: how many times wider the coefficient's standard error
-        and confidence interval are than with an orthogonal design; None when aliased.
-    above_threshold
-        Whether the VIF exceeds the threshold (always True when aliased).
-    aliased
-        Whether the predictor takes part in an exact linear dependency.
-    """
-
-    name: str
-    vif: float | None
-    tolerance: float
-    r_squared: float
-    se_inflation: float | None
-    above_threshold: bool
-    aliased: bool
-
-
-@dataclass(frozen=True, slots=True)
-class TermInflation:
-    """Generalized variance inflation of a multi-column term (Fox & Monette 1992).
-
-    Attributes
-    ----------
-    name
-        The term.
-    columns
-        Its columns.
-    df
-        Number of columns (degrees of freedom of the term).
-    gvif
-        :math:`\\det R_{TT} \\det R_{OO} / \\det R`; None when the term is aliased.
-    gvif_scaled
-        The scaled GVIF, :math:`\\mathrm{GVIF}^{1/(2\\,df)}` (Fox & Monette 1992), comparable
-        across terms of different size; compare it with the square root of the VIF threshold.
-        None when aliased.
-    above_threshold
-        Whether ``gvif_scaled`` exceeds the square root of the threshold (True when aliased).
-    aliased
-        Whether any of its columns takes part in an exact dependency.
-    """
-
-    name: str
-    columns: tuple[str, ...]
-    df: int
-    gvif: float | None
-    gvif_scaled: float | None
-    above_threshold: bool
-    aliased: bool
 
 
 def variance_inflation(
@@ -139,7 +74,17 @@ def variance_inflation(
     for j, name in enumerate(names):
         v = float(vif[j])
         if math.isnan(v):
-            out.append(VariableInflation(name, None, 0.0, 1.0, None, True, True))
+            out.append(
+                VariableInflation(
+                    name=name,
+                    vif=None,
+                    tolerance=0.0,
+                    r_squared=1.0,
+                    se_inflation=None,
+                    above_threshold=True,
+                    aliased=True,
+                )
+            )
             continue
         v = max(v, 1.0)
         out.append(
@@ -193,7 +138,17 @@ def generalized_inflation(
         cnames = tuple(names[c] for c in cols)
         df = len(cols)
         if involved[list(cols)].any():
-            out.append(TermInflation(tname, cnames, df, None, None, True, True))
+            out.append(
+                TermInflation(
+                    name=tname,
+                    columns=cnames,
+                    df=df,
+                    gvif=None,
+                    gvif_scaled=None,
+                    above_threshold=True,
+                    aliased=True,
+                )
+            )
             continue
         others = [k for k in keep if k not in cols]
         full = [*cols, *others]
@@ -204,5 +159,15 @@ def generalized_inflation(
         )
         gvif = max(math.exp(log_gvif), 1.0)
         scaled = gvif ** (1.0 / (2.0 * df))
-        out.append(TermInflation(tname, cnames, df, gvif, scaled, scaled > limit, False))
+        out.append(
+            TermInflation(
+                name=tname,
+                columns=cnames,
+                df=df,
+                gvif=gvif,
+                gvif_scaled=scaled,
+                above_threshold=scaled > limit,
+                aliased=False,
+            )
+        )
     return tuple(out)

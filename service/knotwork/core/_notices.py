@@ -2,24 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
-
-@dataclass(frozen=True, slots=True)
-class Notice:
-    """A warning about the input or the numerics, carried in the result (not raised).
-
-    Attributes
-    ----------
-    code
-        Stable machine-readable code (see ``CODES``); safe to branch on.
-    message
-        One human-readable sentence; wording may improve between releases.
-    """
-
-    code: str
-    message: str
-
+from knotwork_contract import Notice
 
 #: Every warning code the core emits, with its meaning. Codes are API: never rename one.
 CODES: dict[str, str] = {
@@ -52,4 +35,4 @@ def notice(code: str, message: str) -> Notice:
     """Build a notice, checking that its code is a registered one."""
     if code not in CODES:  # pragma: no cover - a programming error, caught by the tests
         raise KeyError(f"unregistered notice code {code!r}")
-    return Notice(code, message)
+    return Notice(code=code, message=message)

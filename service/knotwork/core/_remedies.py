@@ -4,15 +4,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
 
-from ._components import Components
+from knotwork_contract import Comparison, Components, RemedyRow, Removal, Ridge
+
 from ._dependencies import Spectrum
-from ._removal import Removal
-from ._ridge import GCV, HKB, LAWLESS_WANG, VIF_THRESHOLD, Ridge, _Eigen
+from ._ridge import GCV, HKB, LAWLESS_WANG, VIF_THRESHOLD, _Eigen
 
 NONE = "none"
 REMOVAL = "removal"
@@ -51,70 +50,6 @@ _GENERAL = (
 #: Which ridge choice the comparison uses, in order of preference: the k that meets the same
 #: VIF threshold as the removal sequence makes the rows comparable.
 RIDGE_PREFERENCE = (VIF_THRESHOLD, HKB, LAWLESS_WANG, GCV)
-
-
-@dataclass(frozen=True, slots=True)
-class RemedyRow:
-    """One remedy in the comparison.
-
-    Attributes
-    ----------
-    remedy
-        ``"none"``, ``"removal"``, ``"ridge"`` or ``"components"``.
-    setting
-        What was done, in words (which predictors were dropped, which k, which components).
-    parameters
-        Coefficients left besides the intercept (for ridge the effective degrees of freedom).
-    max_vif
-        Largest VIF left (ridge VIF for ridge; diag(V_S L_S^-1 V_S') for components); None when
-        an exact dependency leaves it infinite.
-    r_squared
-        Share of the response's sum of squares explained (None without a response).
-    r_squared_lost
-        The full model's R^2 minus this one's (None without a response).
-    residual_variance
-        Residual variance as a share of the response's variance,
-        (1 - R^2)(n - 1)/(n - 1 - parameters) (n in place of n - 1 without intercept).
-    meaning
-        What the remedy does to the meaning of the coefficients.
-    """
-
-    remedy: str
-    setting: str
-    parameters: float
-    max_vif: float | None
-    r_squared: float | None
-    r_squared_lost: float | None
-    residual_variance: float | None
-    meaning: str
-
-
-@dataclass(frozen=True, slots=True)
-class Comparison:
-    """Remedies side by side.
-
-    Attributes
-    ----------
-    threshold
-        The VIF threshold (echoed; a rule of thumb).
-    rows
-        One row per remedy computed: none first, then removal, ridge and components.
-    r_squared_full
-        R^2 of the full model (None without a response).
-    ridge_rule
-        Which choice of k the ridge row uses (None without a ridge row).
-    ridge_k
-        That k, on the correlation scale.
-    cautions
-        Each remedy changes what the coefficients mean; read them before choosing.
-    """
-
-    threshold: float
-    rows: tuple[RemedyRow, ...]
-    r_squared_full: float | None
-    ridge_rule: str | None
-    ridge_k: float | None
-    cautions: tuple[str, ...]
 
 
 def _max_vif_of(m: np.ndarray) -> float | None:
@@ -228,14 +163,14 @@ def compare_remedies(
             if dof - params > 0:
                 resvar = float((1.0 - r2) * dof / (dof - params))
         return RemedyRow(
-            remedy,
-            setting,
-            float(params),
-            None if max_vif is None or not math.isfinite(max_vif) else float(max_vif),
-            r2,
-            lost,
-            resvar,
-            MEANINGS[remedy],
+            remedy=remedy,
+            setting=setting,
+            parameters=float(params),
+            max_vif=None if max_vif is None or not math.isfinite(max_vif) else float(max_vif),
+            r_squared=r2,
+            r_squared_lost=lost,
+            residual_variance=resvar,
+            meaning=MEANINGS[remedy],
         )
 
     rows = []

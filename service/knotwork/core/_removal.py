@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Collection, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
+from msgspec.structs import replace
+
+from knotwork_contract import Removal, RemovalStep, StillHigh
 
 from ._dependencies import NULL_RTOL, DependencyReport, Spectrum, find_dependencies
 from ._errors import InputError, MatrixError, OptionError, Problem
@@ -81,166 +84,6 @@ _TIE_BREAK = {
         "with the largest inflation is dropped, then the one listed last."
     ),
 }
-
-
-@dataclass(frozen=True, slots=True)
-class RemovalStep:
-    """One drop in a removal sequence.
-
-    Attributes
-    ----------
-    drop
-        The predictor or term dropped.
-    columns
-        The predictor columns it removes (one, or a term's columns).
-    reason
-        ``"aliased"`` (it was in an exact dependency), ``"largest_inflation"`` or
-        ``"least_response_correlation"`` (the rule of the sequence chose it).
-    vif
-        Its inflation at the moment of the drop on the VIF scale: the VIF of a predictor, or
-        the squared scaled GVIF of a term; None when it was aliased (the VIF is then infinite).
-    gvif
-        The generalized VIF of a multi-column term at that moment (None for one column or
-        when aliased).
-    df
-        Number of columns dropped.
-    max_vif_after
-        Largest inflation (VIF scale, as ``vif``) left among the remaining predictors and terms
-        after the drop; None while an exact dependency remains.
-    vifs
-        The table the decision was made on: the inflation (VIF scale) of every predictor and
-        term in ``Removal.units`` order before this drop; None for those dropped at earlier
-        steps. None for the whole table at an aliased step (those are decided by the relation).
-    relation
-        For an aliased drop, the variables of the exact dependency it resolves, the first one
-        being expressed through the others; None otherwise.
-    relation_weights
-        Weights of that relation on the standardized variables (``sum w_j z_j = 0``).
-    r_squared_after
-        R^2 of the response on the remaining predictors after the drop (None without a
-        response or while an exact dependency remains).
-    response_correlation
-        |r| of the dropped predictor with the response, or the multiple correlation of the
-        response with a dropped term's columns (None without a response).
-    skipped
-        Protected predictors or terms that the rule would have chosen before this one.
-    """
-
-    drop: str
-    columns: tuple[str, ...]
-    reason: str
-    vif: float | None
-    gvif: float | None
-    df: int
-    max_vif_after: float | None
-    vifs: tuple[float | None, ...] | None
-    relation: tuple[str, ...] | None = None
-    relation_weights: tuple[float, ...] | None = None
-    r_squared_after: float | None = None
-    response_correlation: float | None = None
-    skipped: tuple[str, ...] = ()
-
-
-@dataclass(frozen=True, slots=True)
-class StillHigh:
-    """A predictor or term left above the threshold when the sequence stops.
-
-    Attributes
-    ----------
-    name
-        The predictor or term.
-    vif
-        Its inflation (VIF scale: VIF, or the squared scaled GVIF of a term); None when it is
-        still in an exact dependency.
-    protected
-        Whether it is protected (then the sequence could not drop it).
-    partner
-        The remaining predictor or term whose removal alone would lower its inflation the most
-        (None when nothing else remains or it is aliased).
-    partner_protected
-        Whether that partner is protected.
-    vif_without_partner
-        Its inflation if the partner alone were dropped.
-    """
-
-    name: str
-    vif: float | None
-    protected: bool
-    partner: str | None
-    partner_protected: bool
-    vif_without_partner: float | None
-
-
-@dataclass(frozen=True, slots=True)
-class Removal:
-    """A greedy removal sequence and where it ends.
-
-    Attributes
-    ----------
-    threshold
-        The VIF threshold (echoed; a rule of thumb, 5 or 10 in common practice).
-    ordering
-        ``"largest_inflation"`` or ``"least_response_correlation"``.
-    rule
-        The exact rule that chose each drop, in words.
-    tie_break
-        How ties are broken.
-    units
-        Every predictor and multi-column term, in input order (the order of ``vifs`` tables).
-    protected
-        The protected predictors and terms.
-    steps
-        The drops in order: exactly aliased ones first, then the rule's choices.
-    kept
-        The predictors and terms left, in input order.
-    kept_indices
-        Columns of the input matrix left, in input order.
-    max_vif_before
-        Largest inflation (VIF scale) before any drop; None when an exact dependency exists.
-    max_vif_left
-        Largest inflation left at the end; None while an exact dependency remains.
-    stopped_by_protection
-        Whether the sequence ended with some predictor or term still above the threshold
-        because the ones it would need to drop are protected.
-    still_high
-        Names of the predictors and terms left above the threshold (empty when the sequence
-        reached its goal).
-    blocking
-        The protected predictors and terms that hold the sequence up: every protected one left
-        above the threshold and every protected main partner of one left above it.
-    holds
-        For each of ``still_high``: its inflation and the partner that keeps it high.
-    r_squared_full
-        R^2 of the response on all predictors (None without a response).
-    refactorizations
-        How many times the remaining matrix was inverted again during the sequence (the
-        accuracy test of the downdate, see ``GROWTH_LIMIT``).
-    alternative
-        With a response, the sequence under ``"least_response_correlation"`` side by side with
-        this one (None otherwise, and None inside the alternative itself).
-    notes
-        How to read the result.
-    """
-
-    threshold: float
-    ordering: str
-    rule: str
-    tie_break: str
-    units: tuple[str, ...]
-    protected: tuple[str, ...]
-    steps: tuple[RemovalStep, ...]
-    kept: tuple[str, ...]
-    kept_indices: tuple[int, ...]
-    max_vif_before: float | None
-    max_vif_left: float | None
-    stopped_by_protection: bool
-    still_high: tuple[str, ...]
-    blocking: tuple[str, ...]
-    holds: tuple[StillHigh, ...]
-    r_squared_full: float | None
-    refactorizations: int
-    alternative: Removal | None
-    notes: tuple[str, ...]
 
 
 _NOTES = (
@@ -757,7 +600,14 @@ def _sequence(
         if plan.blocked_units:
             blocked = [u for u in plan.blocked_units if active[u]]
             holds = tuple(
-                StillHigh(units.names[u], None, bool(protected[u]), None, False, None)
+                StillHigh(
+                    name=units.names[u],
+                    vif=None,
+                    protected=bool(protected[u]),
+                    partner=None,
+                    partner_protected=False,
+                    vif_without_partner=None,
+                )
                 for u in blocked
             )
             kept_cols = units.columns_mask(active, p)

@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 import scipy.optimize
+
+from knotwork_contract import Ridge, RidgeChoice, RidgePoint
 
 from ._dependencies import INVOLVED_TOL, Spectrum
 from ._errors import InputError, OptionError, Problem
@@ -39,122 +40,6 @@ _REFERENCES = {
     GCV: "Golub, Heath & Wahba (1979), Technometrics 21(2), 215-223",
     VIF_THRESHOLD: "smallest k with every ridge VIF (Marquardt 1970) at or below the threshold",
 }
-
-
-@dataclass(frozen=True, slots=True)
-class RidgePoint:
-    """The ridge fit at one value of k.
-
-    Attributes
-    ----------
-    k
-        The ridge constant on the correlation scale.
-    vif
-        Ridge VIFs, diag((R + kI)^-1 R (R + kI)^-1), in variable order; they can fall below 1.
-        At k = 0 they are the ordinary VIFs, None for a variable in an exact dependency.
-    max_vif
-        The largest of them (None when one is not finite).
-    effective_df
-        Effective number of parameters besides the intercept, sum_i l_i / (l_i + k).
-    coefficients
-        Standardized coefficients b(k) = (R + kI)^-1 r_xy in variable order (None without a
-        response, and at k = 0 when an exact dependency makes them not unique).
-    r_squared
-        Share of the response's sum of squares the fit explains, 1 - RSS(k)/SST.
-    residual_variance
-        Residual variance as a share of the response's variance: RSS(k)/(n - 1 - edf) divided by
-        SST/(n - 1) (n in place of n - 1 without intercept); 1 - adjusted R^2 at k = 0.
-    original_coefficients
-        Coefficients in the variables' own units, b_j sd_y / sd_j (None unless standard
-        deviations are given).
-    original_intercept
-        mean_y - sum_j beta_j mean_j (None unless means are given, or without intercept).
-    """
-
-    k: float
-    vif: tuple[float | None, ...]
-    max_vif: float | None
-    effective_df: float
-    coefficients: tuple[float, ...] | None
-    r_squared: float | None
-    residual_variance: float | None
-    original_coefficients: tuple[float, ...] | None
-    original_intercept: float | None
-
-
-@dataclass(frozen=True, slots=True)
-class RidgeChoice:
-    """One published rule for choosing k, and where it lands.
-
-    Attributes
-    ----------
-    rule
-        ``vif_threshold``, ``gcv``, ``hoerl_kennard_baldwin`` or ``lawless_wang``.
-    k
-        The chosen k on the correlation scale (None when the rule is not defined here; see
-        ``note``).
-    max_vif
-        Largest ridge VIF at that k.
-    effective_df
-        Effective number of parameters at that k.
-    r_squared
-        Share of the response's sum of squares explained at that k (None without a response).
-    coefficients
-        Standardized coefficients at that k (None without a response).
-    original_coefficients
-        The same in the variables' own units (None unless standard deviations are given).
-    reference
-        Where the rule comes from.
-    note
-        Why ``k`` is None, or how to read it; None otherwise.
-    """
-
-    rule: str
-    k: float | None
-    max_vif: float | None
-    effective_df: float | None
-    r_squared: float | None
-    coefficients: tuple[float, ...] | None
-    original_coefficients: tuple[float, ...] | None
-    reference: str
-    note: str | None
-
-
-@dataclass(frozen=True, slots=True)
-class Ridge:
-    """Ridge trace over a grid of k and the choices of k.
-
-    Attributes
-    ----------
-    k_scale
-        ``"correlation"``: every k is for Z'Z = R (unit-length centred columns).
-    unit_variance_factor
-        Multiply a k by this to get the penalty for columns scaled to unit variance
-        (Z'Z = (n - 1) R, so n - 1; n without intercept), e.g. scikit-learn's ``alpha``.
-    threshold
-        The VIF threshold used by the ``vif_threshold`` rule (a rule of thumb).
-    grid_rule
-        How the grid was made (the default rule, or ``"given"``).
-    trace
-        The fit at every k of the grid, in grid order.
-    choices
-        The four rules: ``vif_threshold`` (the caller's threshold) first, then ``gcv``,
-        ``hoerl_kennard_baldwin`` and ``lawless_wang``.
-    residual_df
-        n - p - 1 (n - p without intercept): the degrees of freedom of the OLS residual variance
-        s^2 = (1 - R^2) / residual_df used by the Hoerl-Kennard-Baldwin and Lawless-Wang rules.
-    notes
-        How to read the result.
-    """
-
-    k_scale: str
-    unit_variance_factor: float
-    threshold: float
-    grid_rule: str
-    trace: tuple[RidgePoint, ...]
-    choices: tuple[RidgeChoice, ...]
-    residual_df: float
-    notes: tuple[str, ...]
 
 
 _NOTES = (
@@ -555,7 +440,17 @@ def ridge_analysis(
 
     def choice(rule: str, k: float | None, note: str | None) -> RidgeChoice:
         if k is None:
-            return RidgeChoice(rule, None, None, None, None, None, None, _REFERENCES[rule], note)
+            return RidgeChoice(
+                rule=rule,
+                k=None,
+                max_vif=None,
+                effective_df=None,
+                r_squared=None,
+                coefficients=None,
+                original_coefficients=None,
+                reference=_REFERENCES[rule],
+                note=note,
+            )
         kk = np.array([k])
         mv = None if (k == 0.0 and zero_aliased) else float(eig.vifs(kk).max())
         r2 = b_t = orig = None
@@ -566,7 +461,15 @@ def ridge_analysis(
                 b_t = tuple(b.tolist())
                 orig, _ = original(b)
         return RidgeChoice(
-            rule, float(k), mv, float(eig.edf(kk)[0]), r2, b_t, orig, _REFERENCES[rule], note
+            rule=rule,
+            k=float(k),
+            max_vif=mv,
+            effective_df=float(eig.edf(kk)[0]),
+            r_squared=r2,
+            coefficients=b_t,
+            original_coefficients=orig,
+            reference=_REFERENCES[rule],
+            note=note,
         )
 
     # The caller's own threshold first, then generalised cross-validation, then the two

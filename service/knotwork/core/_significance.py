@@ -4,13 +4,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
 import scipy.special
 
 from knotwork.core._dependencies import Spectrum, find_dependencies
+from knotwork_contract import FarrarGlauber, Tests, VariableF
 
 #: The caveats that go with every result, in the order they are reported.
 CAVEATS = (
@@ -20,96 +20,6 @@ CAVEATS = (
     "p-value is no sign of trouble by itself (critiques: Wichers 1975; Kumar 1975; O'Hagan and "
     "McCabe 1975; Review of Economics and Statistics 57(3)).",
 )
-
-
-@dataclass(frozen=True, slots=True)
-class FarrarGlauber:
-    """Overall test that the predictors are uncorrelated (Bartlett's sphericity statistic).
-
-    Attributes
-    ----------
-    chi_square
-        :math:`-[n - 1 - (2p + 5)/6] \\ln\\det R`; None when R is singular (the statistic is
-        infinite) or when there are fewer than two predictors.
-    df
-        Degrees of freedom, :math:`p(p - 1)/2`.
-    p_value
-        Upper-tail chi-square probability of the statistic; None when the statistic is None.
-    """
-
-    chi_square: float | None
-    df: int
-    p_value: float | None
-
-
-@dataclass(frozen=True, slots=True)
-class VariableF:
-    """Per-variable F test of the regression of one predictor on the others.
-
-    Attributes
-    ----------
-    name
-        The predictor.
-    f
-        :math:`(\\mathrm{VIF}_j - 1)(n - p)/(p - 1)`; None when the VIF is not finite
-        (aliased variable) or the degrees of freedom are not positive.
-    df1
-        Numerator degrees of freedom, :math:`p - 1`.
-    df2
-        Denominator degrees of freedom, :math:`n - p` (an int when n is a whole number, a
-        float when n is a non-integral sum of weights).
-    p_value
-        Upper-tail F probability of the statistic; None when ``f`` is None.
-    """
-
-    name: str
-    f: float | None
-    df1: int
-    df2: float
-    p_value: float | None
-
-
-@dataclass(frozen=True, slots=True)
-class Tests:
-    """Determinant of R, Farrar-Glauber tests and partial correlations, with caveats.
-
-    Attributes
-    ----------
-    determinant
-        :math:`\\det R`, between 0 and 1 (0.0 when R is singular; it can underflow to 0.0 for
-        a nonsingular R with many predictors, so read ``log_determinant``).
-    log_determinant
-        :math:`\\ln\\det R`; None when R is singular.
-    farrar_glauber
-        The overall chi-square test.
-    variable_f
-        The per-variable F tests, in predictor order.
-    partial_correlations
-        ``[i][j]``: the correlation of predictors *i* and *j* given all the others,
-        :math:`r_{ij \\cdot \\mathrm{rest}}`, p x p with a unit diagonal; None where undefined
-        (either variable is aliased).
-    partial_t
-        ``[i][j]``: the t statistic of that partial correlation on ``partial_df`` degrees of
-        freedom; None on the diagonal and where the partial correlation is None or is
-        :math:`\\pm 1`.
-    partial_p_values
-        ``[i][j]``: two-sided t probability of ``partial_t``; None where it is None.
-    partial_df
-        Degrees of freedom of the partial t statistics, :math:`n - p` plus the number of exact
-        dependencies (each one removes a dimension from the conditioning set).
-    notes
-        Caveats on reading the tests, and what was left undefined and why.
-    """
-
-    determinant: float
-    log_determinant: float | None
-    farrar_glauber: FarrarGlauber
-    variable_f: tuple[VariableF, ...]
-    partial_correlations: tuple[tuple[float | None, ...], ...]
-    partial_t: tuple[tuple[float | None, ...], ...]
-    notes: tuple[str, ...]
-    partial_p_values: tuple[tuple[float | None, ...], ...] = ()
-    partial_df: float = 0.0
 
 
 def _whole(x: float) -> float:

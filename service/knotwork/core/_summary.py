@@ -14,6 +14,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from knotwork_contract import RepairReport
 from knotwork_contract import escape as esc
 
 from ._errors import (
@@ -63,32 +64,6 @@ class Term:
 
     name: str
     columns: tuple[str, ...]
-
-
-@dataclass(frozen=True, slots=True)
-class RepairReport:
-    """How far a correlation matrix was moved to make it valid (Higham 2002).
-
-    Attributes
-    ----------
-    distance
-        Frobenius norm of the change.
-    iterations
-        Iterations of the alternating projections.
-    converged
-        Whether the iteration met its tolerance.
-    min_eigenvalue_before, min_eigenvalue_after
-        Smallest eigenvalue of the matrix as given and as repaired.
-    singular
-        Whether the repaired matrix is (numerically) singular, as it often is.
-    """
-
-    distance: float
-    iterations: int
-    converged: bool
-    min_eigenvalue_before: float
-    min_eigenvalue_after: float
-    singular: bool
 
 
 @dataclass(frozen=True, eq=False)
