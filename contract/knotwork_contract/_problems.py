@@ -28,11 +28,14 @@ class Problem(msgspec.Struct, frozen=True):
         What was expected and what came, in one sentence.
     """
 
-    pointer: str
-    reason: str
+    pointer: str = ""
+    reason: str = ""
 
 
 class ProblemDocument(msgspec.Struct, frozen=True, kw_only=True):
+    # The service fills every field. The defaults are RFC 9457's reading of an absent member
+    # ("about:blank" for type) and "not given" (None), so a client also reads problem
+    # documents from elsewhere on the path (a proxy) that carry fewer members.
     """An error (RFC 9457), described for machines (``type``, ``errors``) and people.
 
     Attributes
@@ -51,9 +54,9 @@ class ProblemDocument(msgspec.Struct, frozen=True, kw_only=True):
         The request's id, as in the X-Request-ID header and the service's logs.
     """
 
-    type: str
-    title: str
-    status: int
-    detail: str
+    type: str = "about:blank"
+    title: str = ""
+    status: int | None = None
+    detail: str | None = None
     errors: list[Problem] = msgspec.field(default_factory=list)
     request_id: str | None = None

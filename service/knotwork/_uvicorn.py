@@ -19,6 +19,7 @@ document, even those given before the application sees the request.
 from __future__ import annotations
 
 import asyncio
+import uuid
 
 import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
@@ -73,16 +74,19 @@ class GuardedH11Protocol(H11Protocol):
         if not waiting or self.transport.is_closing():
             return
         # h11 cannot answer a request it has not parsed, so the answer is written as bytes.
+        request_id = uuid.uuid4().hex
         body = problem_bytes(
             408,
             "head-timeout",
             f"the request head did not arrive within {self.head_timeout_s:g} s; send the "
             "request line and headers at once",
+            request_id,
         )
         head = (
             "HTTP/1.1 408 Request Timeout\r\n"
             f"content-type: {PROBLEM_MEDIA_TYPE}\r\n"
             f"content-length: {len(body)}\r\n"
+            f"x-request-id: {request_id}\r\n"
             "connection: close\r\n\r\n"
         ).encode()
         self.transport.write(head + body)
@@ -93,14 +97,17 @@ class GuardedH11Protocol(H11Protocol):
         self._cancel_head_timer()
         limit = self.config.h11_max_incomplete_event_size
         size = f" or larger than {limit // 1024} KiB" if limit else ""
+        request_id = uuid.uuid4().hex
         body = problem_bytes(
             400,
             "malformed-head",
             f"the request line or headers cannot be read: not valid HTTP/1.1{size}",
+            request_id,
         )
         headers = [
             (b"content-type", PROBLEM_MEDIA_TYPE.encode()),
             (b"content-length", str(len(body)).encode()),
+            (b"x-request-id", request_id.encode()),
             (b"connection", b"close"),
         ]
         event = h11.Response(status_code=400, headers=headers, reason=b"Bad Request")

@@ -59,9 +59,7 @@ def _problem_from(response: httpx.Response) -> ProblemDetails:
         problem = None
     if problem is None or (problem.title == "" and problem.status is None):
         problem = ProblemDetails(
-            title=response.reason_phrase or "error",
-            status=response.status_code,
-            detail=None,
+            title=response.reason_phrase or "error", status=response.status_code
         )
     return problem
 

@@ -17,14 +17,14 @@ from __future__ import annotations
 import math
 from typing import Any
 
-import msgspec
-
 import knotwork_contract
 from knotwork_contract import Components as Component
 from knotwork_contract import (
     Conditioning,
     Dependency,
     FarrarGlauber,
+    Problem,
+    ProblemDocument,
     Removal,
     RemovalStep,
     Ridge,
@@ -132,47 +132,15 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
         return pd.DataFrame(rows, index=pd.Index([t.k for t in trace], name="k"))
 
 
-class _Record(msgspec.Struct, frozen=True, kw_only=True):
-    """Base of the problem records: immutable, keyword-only, unknown fields ignored."""
-
-
-class FieldError(_Record, frozen=True, kw_only=True):
-    """One field the service objected to.
-
-    Attributes
-    ----------
-    pointer
-        JSON pointer (RFC 6901) into the request, or a column name.
-    reason
-        What was expected, what came, and how to fix it.
-    """
-
-    pointer: str = ""
-    reason: str = ""
-
-
-class ProblemDetails(_Record, frozen=True, kw_only=True):
+class ProblemDetails(ProblemDocument, frozen=True, kw_only=True):
     """A problem document (RFC 9457) as the service sends it for every error.
 
-    Attributes
-    ----------
-    type
-        Stable URI naming the kind of error.
-    title
-        Short summary of the kind of error.
-    status
-        HTTP status code.
-    detail
-        Explanation specific to this occurrence.
-    errors
-        The fields at fault, each with a pointer and a reason.
+    The contract's :class:`~knotwork_contract.ProblemDocument`, under the client's name.
     """
 
-    type: str = "about:blank"
-    title: str = ""
-    status: int | None = None
-    detail: str | None = None
-    errors: list[FieldError] = []
+
+#: One field the service objected to (``pointer``, ``reason``): the contract's record.
+FieldError = Problem
 
 
 def _f(value: float | None) -> float:

@@ -34,6 +34,7 @@ from knotwork_contract import (
     RESULT_TYPES,
     AssessRequest,
     BatchRequest,
+    Problem,
     ProblemDocument,
 )
 
@@ -358,19 +359,27 @@ def _describe(schemas: dict[str, Any]) -> None:
                 prop["description"] = fields[field_name]
 
 
+#: Fields the contract lets a client miss (None) that the service always fills.
+_NEVER_NULL = {"ProblemDocument": ("status", "detail")}
+
+
 def _sent_in_full(schemas: dict[str, Any]) -> None:
-    """Mark every field of a result record required and drop the defaults litestar copied.
+    """Mark every field of a result or problem record required; drop the defaults litestar copied.
 
     The service sends every field of every record it answers with; the contract's defaults
     only let a client decode an answer that lacks a field, and say nothing about what is sent.
     """
-    for record in RESULT_TYPES:
+    records: tuple[type, ...] = (*RESULT_TYPES, ProblemDocument, Problem)
+    for record in records:
         schema = schemas.get(record.__name__)
         if schema is None:
             continue
         properties = schema.get("properties", {})
-        for prop in properties.values():
+        for name, prop in properties.items():
             prop.pop("default", None)
+            if name in _NEVER_NULL.get(record.__name__, ()):
+                (kind,) = [k for k in prop.pop("oneOf") if k != {"type": "null"}]
+                prop.update(kind)
         schema["required"] = sorted(properties)
 
 

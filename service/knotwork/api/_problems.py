@@ -117,10 +117,12 @@ def _document(status: int, kind: str, detail: str, errors: list[Problem]) -> Pro
     )
 
 
-def problem_bytes(status: int, kind: str, detail: str) -> bytes:
+def problem_bytes(status: int, kind: str, detail: str, request_id: str) -> bytes:
     """A problem document as JSON bytes, for answers written below the application (the
-    server layer's answers to request heads it cannot use)."""
-    return msgspec.json.encode(_document(status, kind, detail, []))
+    server layer's answers to request heads it cannot use), with the id it sends as
+    ``X-Request-ID``."""
+    document = msgspec.structs.replace(_document(status, kind, detail, []), request_id=request_id)
+    return msgspec.json.encode(document)
 
 
 def problem_of(exc: BaseException) -> tuple[ProblemDocument, dict[str, str]]:
