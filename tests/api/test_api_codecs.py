@@ -63,6 +63,7 @@ def test_json_table_becomes_float_arrays_with_nan_for_null() -> None:
     assert isinstance(prepared.data, TableData)
     column = prepared.data.columns["a"]
     assert column.dtype == np.float64
+    # Exact: decoding converts numbers, it computes nothing (the same doubles must come out).
     assert_array_equal(column, [1.0, np.nan, 2.5])
     assert prepared.data.categorical == {"g": ["x", None, "y"]}
     assert prepared.options == AssessOptions()
@@ -100,6 +101,7 @@ def test_arrow_types_map_to_numbers_and_labels() -> None:
         data = decode_table_body(body, media, b"", Limits()).data
         assert isinstance(data, TableData)
         assert list(data.columns) == ["i", "u", "f", "d", "b", "dnum"]
+        # Exact: every value here is representable, and decoding only converts it.
         assert_array_equal(data.columns["i"], [1.0, 2.0, np.nan])
         assert_array_equal(data.columns["d"], [1.25, np.nan, 2.0])
         assert_array_equal(data.columns["b"], [1.0, 0.0, np.nan])

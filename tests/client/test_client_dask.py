@@ -33,7 +33,7 @@ def test_equals_pandas_on_a_cluster(dask_client):
     got = summarize_dask(ddf, response="loaves", weights="weeks", split_every=3)
     expected = summarize(frame, response="loaves", weights="weeks")
     assert got.names == expected.names
-    assert got.n == expected.n
+    assert got.n == expected.n  # exact: sums of whole-number weights, in any order
     assert got.rows_read == len(frame)
     assert_allclose(got.means, expected.means, rtol=1e-12)
     assert_allclose(got.covariance, expected.covariance, rtol=1e-10, atol=1e-12)
@@ -61,7 +61,7 @@ def test_pairwise_and_missing_counts_over_partitions(dask_client):
     got = summarize_dask(ddf, response="loaves", missing="pairwise")
     expected = summarize(frame, response="loaves", missing="pairwise")
     assert_allclose(got.correlation, expected.correlation, rtol=1e-11, atol=1e-15)
-    assert got.n == expected.n
+    assert got.n == expected.n  # exact: the smallest pairwise count, a whole number
 
 
 def summarize_counts(frame):

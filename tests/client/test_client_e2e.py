@@ -137,6 +137,7 @@ def test_rows_correlation_and_summary_agree(service, weighted):
             (t.name, t.columns) for t in rows.terms
         ]
         assert_allclose([t.gvif for t in other.terms], [t.gvif for t in rows.terms], rtol=1e-9)
+    # Exact: n sums whole-number weights, exact in floating point in any order.
     assert moments.n == rows.n == (frame["weeks"].sum() if weighted else len(frame))
     assert drops(rows)  # the tangled pairs make the sequence non-trivial
 
@@ -167,7 +168,7 @@ def test_pairwise_summary_matches_pairwise_rows(service):
         rows = client.assess(frame, response="loaves", missing="pairwise")
         local = client.assess(summary)
     assert local.input_kind == "correlation"
-    assert local.n == rows.n
+    assert local.n == rows.n  # exact: the smallest pairwise count, a whole number
     assert_allclose(vifs(local), vifs(rows), rtol=1e-9)
 
 

@@ -461,6 +461,8 @@ def test_async_client_mirrors_the_sync_client(stand_in, fake_time, bakery):
     result, batch, health, ready = asyncio.run(run())
     with client_for(stand_in, fake_time, token="t") as client:
         sync_result = client.assess(frame, threshold=10)
+    # Exact: both clients send the same bytes (checked below) and the stand-in answers a body
+    # by the same computation.
     assert result == sync_result
     assert len(batch) == 2 and health == {"status": "ok"} and ready
     assert fake_time.sleeps[0] >= 2 and len(fake_time.sleeps) == 2

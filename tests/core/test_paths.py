@@ -59,6 +59,7 @@ def test_merged_parts_equal_the_whole(longley: pd.DataFrame) -> None:
         cov = centred.T @ centred / max(len(x) - 1, 1)  # a one-row part has zero covariance
         summaries.append((len(x), x.mean(axis=0), cov))
     merged = merge_moments(summaries, list(longley.columns))
+    # Exact: n counts rows, a whole number, exact in floating point in any order.
     assert merged.n == whole.n
     assert_allclose(merged.means, whole.means, rtol=1e-14)
     assert_allclose(merged.comoments, whole.comoments, rtol=1e-11)
@@ -84,6 +85,7 @@ def test_integer_weights_equal_repeated_rows(rng: np.random.Generator) -> None:
     cols = {f"x{j}": x[:, j] for j in range(4)}
     weighted = from_table({**cols, "w": w}, weights="w")
     repeated = from_table({k: np.repeat(v, w.astype(int)) for k, v in cols.items()})
+    # Exact: n sums whole-number weights, exact in floating point in any order.
     assert weighted.n == repeated.n == w.sum()
     assert_allclose(_vifs(weighted), _vifs(repeated), rtol=1e-12)
 

@@ -46,6 +46,8 @@ def minimise_over_correlations(target: np.ndarray, seed: int = 0) -> np.ndarray:
 
 
 def assert_valid_correlation(matrix: np.ndarray) -> None:
+    # Exact: the repair promises these bits, it returns 0.5 * (A + A.T) with the diagonal set
+    # to 1 (floating-point addition commutes, so the halves are equal).
     assert np.array_equal(matrix, matrix.T)
     assert np.all(np.diag(matrix) == 1.0)
     assert np.linalg.eigvalsh(matrix)[0] >= -1e-12
@@ -92,6 +94,8 @@ def longley_r() -> np.ndarray:
 
 def test_valid_matrix_is_returned_unchanged(longley_r):
     repaired, repair = nearest_correlation(longley_r)
+    # Exact: a valid input is returned as is (its symmetric part is itself, bit for bit), and
+    # the eigenvalue after is the eigenvalue before, not a second computation.
     assert np.array_equal(repaired, longley_r)
     assert repair.distance == 0.0
     assert repair.iterations in (0, 1)

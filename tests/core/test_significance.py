@@ -32,6 +32,8 @@ def test_longley_chi_square_and_determinant(longley_case):
     assert result.farrar_glauber.df == 15
     assert result.determinant == pytest.approx(1.57962e-8, rel=5e-6)
     assert result.log_determinant == pytest.approx(np.log(1.57962e-8), rel=1e-6)
+    # Exact: the core calls scipy.special.chdtrc, the function scipy.stats.chi2.sf evaluates,
+    # on the same statistic.
     assert result.farrar_glauber.p_value == scipy.stats.chi2.sf(
         result.farrar_glauber.chi_square, 15
     )
@@ -60,6 +62,7 @@ def test_variable_f_equals_auxiliary_regression_f(longley_case):
         assert (test.df1, test.df2) == (p - 1, n - p)
         assert test.df2 == auxiliary.df_resid
         assert test.f == pytest.approx(auxiliary.fvalue, rel=1e-9)
+        # Exact: scipy.special.fdtrc in the core, the function scipy.stats.f.sf evaluates.
         assert test.p_value == scipy.stats.f.sf(test.f, p - 1, n - p)
         assert test.p_value == pytest.approx(auxiliary.f_pvalue, rel=1e-6, abs=1e-300)
 
@@ -111,11 +114,14 @@ def test_shared_spectrum_gives_the_same_answer(longley_case):
     x, corr, names, vif = longley_case
     direct = collinearity_tests(corr, len(x), names, vif)
     shared = collinearity_tests(corr, len(x), names, vif, spectrum=Spectrum.of(corr))
+    # Exact: without a spectrum the function computes Spectrum.of(corr) itself, the same call
+    # on the same matrix (unlike condition_diagnostics, which rescales R first).
     assert shared == direct
 
 
 def test_orthogonal_design_does_not_reject():
     result = collinearity_tests(np.eye(3), 50, ("a", "b", "c"), (1.0, 1.0, 1.0))
+    # Exact: the factorizations of the identity multiply and add only zeros and ones.
     assert result.determinant == 1.0
     assert result.log_determinant == 0.0
     assert result.farrar_glauber.chi_square == 0.0

@@ -82,6 +82,7 @@ def test_merged_partial_summaries_equal_the_whole(design, cut) -> None:
     a = from_table(dict(zip(cols, x[:cut].T, strict=True)))
     b = from_table(dict(zip(cols, x[cut:].T, strict=True)))
     merged = a.merge(b)
+    # Exact: n counts rows, a whole number, exact in floating point in any order.
     assert merged.n == whole.n
     assert_allclose(merged.comoments, whole.comoments, rtol=1e-9, atol=1e-9)
     expected = [v.vif for v in assess(whole, OPTS).variables]

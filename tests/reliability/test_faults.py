@@ -182,6 +182,8 @@ def test_sigterm_mid_load_finishes_every_admitted_request(tmp_path: Path) -> Non
         for index, response in enumerate(results):
             assert isinstance(response, httpx.Response), f"request {index}: {response!r}"
             assert response.status_code == 200, response.text
+            # Exact: the same request to the same process, computed by the same code with one
+            # BLAS thread (KNOTWORK_BLAS_THREADS=1), answers with the same bytes under load.
             assert response.json() == expected[index], f"request {index} answered differently"
         for item in late:
             if isinstance(item, httpx.Response):

@@ -209,6 +209,8 @@ def test_a_batch_answers_each_item_as_alone(client: TestClient, designs: list) -
     for index, (item, result) in enumerate(zip(items, results, strict=True)):
         alone = client.post("/v1/assess", json=item)
         if alone.status_code == 200:
+            # Exact: a batch item goes through the same decode_assess and run as a single
+            # request (routes._assess_many), on the same values.
             assert result == alone.json()
         else:
             problem = alone.json()
