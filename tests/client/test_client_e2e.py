@@ -144,7 +144,7 @@ def test_rows_correlation_and_summary_agree(service, weighted):
 
 @pytest.mark.slow
 def test_longley_whichever_way_it_travels(service):
-    # Source: statsmodels.datasets.longley; check values from methods.md (widely cited to
+    # Source: statsmodels.datasets.longley; check values from docs/numerics.md (widely cited to
     # 2 dp, from memory: 135.53, 1788.51, 33.62, 3.59, 399.15, 758.98).
     from statsmodels.datasets import longley
 
@@ -156,7 +156,7 @@ def test_longley_whichever_way_it_travels(service):
         summary = client.assess(summarize(chunks), threshold=10)
     assert_allclose(vifs(rows), published, rtol=5e-6)
     assert_allclose(vifs(summary), vifs(rows), rtol=1e-9)
-    # Greedy removal at threshold 10 (methods.md): GNP, YEAR, GNPDEFL; kept UNEMP, ARMED, POP.
+    # Greedy removal at threshold 10 (docs/numerics.md): GNP, YEAR, GNPDEFL; kept UNEMP, ARMED, POP.
     assert drops(summary) == drops(rows) == ["GNP", "YEAR", "GNPDEFL"]
 
 

@@ -216,7 +216,7 @@ def test_longley_shifted_vifs_match_exact_and_published(longley_shifted):
     vif = np.diag(np.linalg.inv(s.correlation))
     # Reference 1: exact rational arithmetic on the shifted data.
     assert_allclose(vif, exact_vif, rtol=1e-9)
-    # Reference 2: widely cited Longley VIFs (from memory, and in methods.md), 6 significant
+    # Reference 2: widely cited Longley VIFs (from memory, and in docs/numerics.md), 6 significant
     # digits; a shift cannot change a VIF.
     assert_allclose(vif, [135.532, 1788.51, 33.6189, 3.58893, 399.151, 758.981], rtol=5e-6)
 

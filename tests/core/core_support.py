@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-# NIST StRD Longley certified values (methods.md, stored copy of the NIST header).
+# NIST StRD Longley certified values (docs/numerics.md, check values).
 NIST_B = [
     -3482258.63459582,
     15.0618722713733,

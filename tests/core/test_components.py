@@ -50,13 +50,13 @@ def test_longley_eigenvalues_and_condition_index_rule(longley):
     x, y, names = longley
     r, r_xy = summary(x, y)
     result = principal_components(r, names, n=len(y), rule="condition_index", r_xy=r_xy)
-    # methods.md check values: eigenvalues of Longley's R.
+    # docs/numerics.md check values: eigenvalues of Longley's R.
     assert_allclose(
         result.eigenvalues,
         [4.60338, 1.17534, 0.203425, 0.0149283, 0.00255207, 0.000376708],
         rtol=5e-6,
     )
-    # The largest centred index sqrt(lambda_max / lambda_min) = 110.544 (methods.md).
+    # The largest centred index sqrt(lambda_max / lambda_min) = 110.544 (docs/numerics.md).
     assert result.condition_indices[-1] == pytest.approx(110.544, rel=5e-6)
     assert result.kept == (0, 1, 2, 3)  # indices 42.5 and 110.5 exceed 30 (common practice)
     assert result.rule == "condition_index" and result.limit == 30.0

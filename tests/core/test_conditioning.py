@@ -41,7 +41,7 @@ def test_longley_intercept_basis_matches_published_indices(longley_x):
     design = np.column_stack([np.ones(len(x)), x])
     result = condition_diagnostics(design.T @ design, (INTERCEPT, *names), "scaled_with_intercept")
 
-    # Longley BKW indices, methods.md check values (computed with numpy/statsmodels).
+    # Longley BKW indices, docs/numerics.md check values (computed with numpy/statsmodels).
     assert_allclose(
         result.indices,
         [1.0, 9.14172, 12.2557, 25.3366, 230.424, 1048.08, 43275.0],
@@ -53,7 +53,7 @@ def test_longley_intercept_basis_matches_published_indices(longley_x):
     assert result.null_dim == 0
 
     # Tangled sets at the default rules of thumb (index 30, proportion 0.5; common practice),
-    # methods.md: {GNPDEFL, POP} at 1048.08 and {const, GNP, UNEMP, YEAR} at 43275.0.
+    # docs/numerics.md: {GNPDEFL, POP} at 1048.08 and {const, GNP, UNEMP, YEAR} at 43275.0.
     assert [t.variables for t in result.tangles] == [
         (INTERCEPT, "GNP", "UNEMP", "YEAR"),
         ("GNPDEFL", "POP"),
@@ -118,7 +118,7 @@ def test_correlation_basis_centred_index(longley_x):
     x, names = longley_x
     corr = np.corrcoef(x, rowvar=False)
     result = condition_diagnostics(corr, names, "correlation")
-    # methods.md: sqrt(lambda_max / lambda_min) of Longley's R = sqrt(12220.0) = 110.544.
+    # docs/numerics.md: sqrt(lambda_max / lambda_min) of Longley's R = sqrt(12220.0) = 110.544.
     assert result.condition_number == pytest.approx(110.544, rel=5e-6)
     lam = np.linalg.eigvalsh(corr)[::-1]
     assert_allclose(result.eigenvalues, lam, rtol=1e-10)

@@ -40,7 +40,7 @@ def test_longley_rows_against_statsmodels(longley):
     full = sm.OLS(y, sm.add_constant(x)).fit()
     assert result.r_squared_full == pytest.approx(full.rsquared, rel=1e-10)
     assert rows["none"].parameters == 6 and rows["none"].r_squared_lost == pytest.approx(0)
-    assert rows["none"].max_vif == pytest.approx(1788.51, rel=5e-6)  # methods.md VIF of GNP
+    assert rows["none"].max_vif == pytest.approx(1788.51, rel=5e-6)  # docs/numerics.md: VIF of GNP
     assert rows["none"].residual_variance == pytest.approx(1 - full.rsquared_adj, rel=1e-8)
 
     kept = list(removal.kept_indices)

@@ -139,8 +139,8 @@ def longley_data():
 def test_longley_threshold_10_matches_check_values(longley_data):
     _, _, names, r, _ = longley_data
     result = removal_sequence(r, names, threshold=10)
-    # methods.md check values (computed with numpy/statsmodels): GNP (1788.51), YEAR (271.190),
-    # GNPDEFL (35.9708); kept UNEMP, ARMED, POP.
+    # docs/numerics.md check values (computed with numpy/statsmodels): GNP (1788.51),
+    # YEAR (271.190), GNPDEFL (35.9708); kept UNEMP, ARMED, POP.
     assert [s.drop for s in result.steps] == ["GNP", "YEAR", "GNPDEFL"]
     assert_allclose([s.vif for s in result.steps], [1788.51, 271.190, 35.9708], rtol=5e-6)
     assert result.kept == ("UNEMP", "ARMED", "POP")
@@ -185,7 +185,7 @@ def test_real_designs_equal_scratch(longley_data, threshold):
 def test_diabetes_first_step_is_largest_published_vif():
     x = load_diabetes(scaled=False).data
     result = removal_sequence(np.corrcoef(x, rowvar=False), names_of(10), threshold=5)
-    # methods.md check values: VIF of s1 59.2025 is the largest in the diabetes data.
+    # docs/numerics.md check values: VIF of s1 59.2025 is the largest in the diabetes data.
     assert result.steps[0].drop == "x4"
     assert result.steps[0].vif == pytest.approx(59.2025, rel=5e-6)
 
@@ -434,7 +434,7 @@ def test_term_in_an_exact_dependency_is_dropped_whole(rng):
 
 
 def test_near_dependency_is_not_aliased(rng):
-    # A relation that holds in every row but one gives a large finite VIF (methods.md).
+    # A relation that holds in every row but one gives a large finite VIF (docs/numerics.md).
     x = aliased_design(rng)
     x[0, 2] += 1e-3
     m = np.corrcoef(x, rowvar=False)

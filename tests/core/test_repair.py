@@ -105,7 +105,7 @@ def test_valid_matrix_is_returned_unchanged(longley_r):
 
 
 def test_rounded_longley_matrix_is_repaired(longley_r):
-    # methods.md: Longley's R rounded to 2 decimals is indefinite.
+    # docs/numerics.md: Longley's R rounded to 2 decimals is indefinite.
     rounded = np.round(longley_r, 2)
     assert np.linalg.eigvalsh(rounded)[0] < 0
     repaired, repair = nearest_correlation(rounded)

@@ -38,10 +38,10 @@ def test_longley_published_choices_and_ridge_vifs(longley):
     r, r_xy = summary(x, y)
     result = ridge_analysis(r, names, n=len(y), threshold=10, r_xy=r_xy, grid=[0.01])
     ch = choices(result)
-    # methods.md check values (correlation scale): k_HKB 0.000400815, k_LW 0.00302769.
+    # docs/numerics.md check values (correlation scale): k_HKB 0.000400815, k_LW 0.00302769.
     assert ch[HKB].k == pytest.approx(0.000400815, rel=5e-6)
     assert ch[LAWLESS_WANG].k == pytest.approx(0.00302769, rel=5e-6)
-    # methods.md: ridge VIFs at k = 0.01 (Marquardt 1970 formula).
+    # docs/numerics.md: ridge VIFs at k = 0.01 (Marquardt 1970 formula).
     assert_allclose(
         result.trace[0].vif, [17.1640, 3.45422, 2.73104, 2.10435, 13.7889, 9.99575], rtol=5e-6
     )

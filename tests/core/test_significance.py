@@ -27,7 +27,8 @@ def longley_case():
 def test_longley_chi_square_and_determinant(longley_case):
     x, corr, names, vif = longley_case
     result = collinearity_tests(corr, len(x), names, vif)
-    # methods.md check values (computed with numpy): chi^2 = 218.556 on 15 df, det R = 1.57962e-8.
+    # docs/numerics.md check values (computed with numpy): chi^2 = 218.556 on 15 df,
+    # det R = 1.57962e-8.
     assert result.farrar_glauber.chi_square == pytest.approx(218.556, rel=5e-6)
     assert result.farrar_glauber.df == 15
     assert result.determinant == pytest.approx(1.57962e-8, rel=5e-6)

@@ -1,8 +1,8 @@
 """The deployment files in deploy/ hold together: they parse, carry the fields their kinds
 require, point their probes at the service's real routes and run as the image's user.
 
-What the manifests must say is the service's contract (design.md, "Operation" and "Fixed
-names"); the required fields per kind are those of the Kubernetes API reference for apps/v1
+What the manifests must say is the service's contract (docs/contract.md, "Starting the
+service", "Settings" and "Routes"); the required fields per kind are those of the Kubernetes API reference for apps/v1
 Deployment, v1 Service and Secret, autoscaling/v2 HorizontalPodAutoscaler and policy/v1
 PodDisruptionBudget, and of the Compose specification. No cluster or engine is needed: the image
 itself is built and run by deploy/image-check.sh.
@@ -21,7 +21,7 @@ DEPLOY = Path(__file__).resolve().parents[2] / "deploy"
 K8S = DEPLOY / "k8s"
 CONTAINERFILE = DEPLOY / "Containerfile"
 
-#: The fixed routes (design.md, "Fixed names").
+#: The fixed routes (docs/contract.md, "Routes").
 LIVENESS, READINESS, METRICS = "/healthz", "/readyz", "/metrics"
 PORT = 8000
 

@@ -174,7 +174,7 @@ def principal_components(
     diagonal and the ``vif_threshold`` choice equal an independent computation from
     scikit-learn's ``PCA`` of the standardized columns (Longley, diabetes, copper); the
     kept-component fit equals scikit-learn's ``PCA`` followed by ``LinearRegression`` on
-    standardized data to 1e-8 (diabetes, Longley); eigenvalues equal methods.md's Longley
+    standardized data to 1e-8 (diabetes, Longley); eigenvalues equal docs/numerics.md's Longley
     check values.
 
     Implementation: the symmetric eigen-decomposition shared with the other diagnostics

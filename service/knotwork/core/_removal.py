@@ -826,7 +826,7 @@ def removal_sequence(
     Longley, diabetes and copper data; the sequences agree exactly and the values to 1e-9
     (widened to about eps * cond where the matrix is ill-conditioned, the accuracy any inverse
     has there). On Longley at threshold 10 the sequence is GNP (1788.51), YEAR (271.190),
-    GNPDEFL (35.9708), keeping UNEMP, ARMED and POP (methods.md check values); every step's
+    GNPDEFL (35.9708), keeping UNEMP, ARMED and POP (docs/numerics.md check values); every step's
     table matches statsmodels' ``variance_inflation_factor(standardize=True)`` on the remaining
     design with a constant, and every R^2 statsmodels' OLS on the remaining predictors.
 

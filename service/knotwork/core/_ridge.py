@@ -324,7 +324,7 @@ def ridge_analysis(
 
     Verification: Longley (statsmodels.datasets): k_HKB 0.000400815, k_LW 0.00302769 and the
     ridge VIFs at k = 0.01 (17.1640, 3.45422, 2.73104, 2.10435, 13.7889, 9.99575) to 1e-6
-    (methods.md check values); coefficients equal scikit-learn's ``Ridge`` on standardized
+    (docs/numerics.md check values); coefficients equal scikit-learn's ``Ridge`` on standardized
     data with ``alpha = (n - 1) k`` to 1e-8 (diabetes and Longley); VIFs, effective df and
     residuals equal direct matrix formulas (inverse of R + kI) on random designs; GCV equals a
     brute-force minimization of the formula computed from rows (hat-matrix trace).
