@@ -2,10 +2,10 @@
 require, point their probes at the service's real routes and run as the image's user.
 
 What the manifests must say is the service's contract (docs/contract.md, "Starting the
-service", "Settings" and "Routes"); the required fields per kind are those of the Kubernetes API reference for apps/v1
-Deployment, v1 Service and Secret, autoscaling/v2 HorizontalPodAutoscaler and policy/v1
-PodDisruptionBudget, and of the Compose specification. No cluster or engine is needed: the image
-itself is built and run by deploy/image-check.sh.
+service", "Settings" and "Routes"); the required fields per kind are those of the Kubernetes
+API reference for apps/v1 Deployment, v1 Service and Secret, autoscaling/v2
+HorizontalPodAutoscaler and policy/v1 PodDisruptionBudget, and of the Compose specification.
+No cluster or engine is needed: the image itself is built and run by deploy/image-check.sh.
 """
 
 from __future__ import annotations
