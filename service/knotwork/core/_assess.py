@@ -9,9 +9,10 @@ from typing import TypedDict
 
 import numpy as np
 
-from knotwork_contract import Assessment, Conditioning, Notice, TermInflation
+from knotwork_contract import Assessment, Conditioning, Notice, OptionsError, TermInflation
+from knotwork_contract import check_options as contract_check_options
 
-from ._components import LIMIT_WITH_VIF_THRESHOLD, RULES, VIF_THRESHOLD, principal_components
+from ._components import LIMIT_WITH_VIF_THRESHOLD, VIF_THRESHOLD, principal_components
 from ._conditioning import condition_diagnostics
 from ._dependencies import DependencyReport, Spectrum, find_dependencies
 from ._errors import OptionError, Problem
@@ -100,39 +101,41 @@ class Options:
         return self.sections is None or section in self.sections
 
 
+def _wire_document(options: Options) -> dict[str, object]:
+    """The options as the contract's options document, to check them by its rules."""
+    doc: dict[str, object] = {
+        "threshold": options.threshold,
+        "protect": list(options.protect),
+        "intercept": options.intercept,
+        "components": {"rule": options.components_rule, "limit": options.components_limit},
+    }
+    if options.sections is not None:
+        doc["sections"] = list(options.sections)
+    if options.ridge_grid is not None:
+        doc["ridge"] = {"grid": list(options.ridge_grid)}
+    return doc
+
+
 def check_options(options: Options, summary: Summary) -> None:
-    """Validate options against the summary, naming the option at fault."""
+    """Validate options against the summary, naming the option at fault.
+
+    The rules the contract declares (bounds, enums: the threshold finite and above 1, the
+    sections, k >= 0, the components rule) are checked by the contract itself, in its own
+    words; what depends on the input or on two options together is checked here. The kernels
+    trust what passes.
+    """
+    try:
+        contract_check_options(_wire_document(options))
+    except OptionsError as exc:
+        where = exc.pointer.removeprefix("/options")
+        raise OptionError(exc.reason, [Problem(where, exc.reason)]) from None
     problems: list[Problem] = []
-    t = options.threshold
-    if not isinstance(t, int | float) or isinstance(t, bool) or not math.isfinite(t) or t <= 1:
-        problems.append(
-            Problem("/threshold", "threshold must be a finite number above 1 (VIF >= 1 always)")
-        )
     known = set(summary.names) | {term.name for term in summary.terms}
     for i, name in enumerate(options.protect):
         if name not in known:
             problems.append(
                 Problem(f"/protect/{i}", f"protect names {name!r}, which is not a predictor")
             )
-    if options.sections is not None:
-        for i, s in enumerate(options.sections):
-            if s not in SECTIONS:
-                problems.append(
-                    Problem(f"/sections/{i}", f"unknown section {s!r}; choose from {SECTIONS}")
-                )
-    if options.ridge_grid is not None:
-        if len(options.ridge_grid) == 0:
-            problems.append(Problem("/ridge/grid", "the grid needs at least one value of k"))
-        for i, k in enumerate(options.ridge_grid):
-            if not math.isfinite(k) or k < 0:
-                problems.append(Problem(f"/ridge/grid/{i}", "k must be a finite number >= 0"))
-    if options.components_rule not in RULES:
-        problems.append(
-            Problem(
-                "/components/rule",
-                f"unknown rule {options.components_rule!r}; choose from {RULES}",
-            )
-        )
     lim = options.components_limit
     if lim is not None:
         if options.components_rule == VIF_THRESHOLD:

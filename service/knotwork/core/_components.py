@@ -68,10 +68,6 @@ def _check_rule(rule: str, limit: float | None, threshold: float) -> float:
     if rule == VIF_THRESHOLD:
         if limit is not None:
             raise OptionError.at("/components/limit", LIMIT_WITH_VIF_THRESHOLD)
-        if not (math.isfinite(threshold) and threshold >= 1.0):
-            raise OptionError.at(
-                "/threshold", f"the threshold must be a finite number >= 1, got {threshold}"
-            )
         return float(threshold)
     value = DEFAULT_LIMITS[rule] if limit is None else float(limit)
     if rule == CUMULATIVE and not (0.0 < value <= 1.0):

@@ -854,11 +854,6 @@ def removal_sequence(
     p = len(names)
     if m.shape != (p, p):
         raise InputError.at("/matrix", f"expected a {p} x {p} matrix, got shape {m.shape}")
-    if not (math.isfinite(threshold) and threshold >= 1.0):
-        raise OptionError.at(
-            "/threshold",
-            f"the threshold must be a finite number >= 1 (VIFs are >= 1), got {threshold}",
-        )
     r = None if r_xy is None else np.asarray(r_xy, dtype=float)
     units = _Units(m, names, terms, r)
     protected = units.resolve(protect, names)

@@ -351,10 +351,6 @@ def ridge_analysis(
     p = len(names)
     if m.shape != (p, p):
         raise InputError.at("/matrix", f"expected a {p} x {p} matrix, got shape {m.shape}")
-    if not (math.isfinite(threshold) and threshold >= 1.0):
-        raise OptionError.at(
-            "/threshold", f"the threshold must be a finite number >= 1, got {threshold}"
-        )
     r = None if r_xy is None else np.asarray(r_xy, dtype=float)
     eig = _Eigen(m, spectrum, r)
     nu = 1.0 if intercept else 0.0
