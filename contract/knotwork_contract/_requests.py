@@ -64,8 +64,8 @@ Section = Literal[
     "comparison",
 ]
 
-#: The parts of an assessment a client may ask for (all of them by default); a test checks
-#: that they are the core's sections.
+#: The parts of an assessment a client may ask for (all of them by default), in answer order;
+#: the core computes exactly these (``variables`` and ``dependencies`` always).
 SECTIONS: tuple[str, ...] = get_args(Section)
 
 _NUMBER_OR_NULL = {"anyOf": [{"type": "number"}, {"type": "null"}]}

@@ -25,13 +25,7 @@ from knotwork.codecs import (
     decode_table_body,
     options_from_query,
 )
-from knotwork_contract import SECTIONS, AssessOptions, join, msgspec_fault
-
-
-def test_sections_match_the_core() -> None:
-    from knotwork.core import SECTIONS as CORE_SECTIONS
-
-    assert tuple(SECTIONS) == tuple(CORE_SECTIONS)
+from knotwork_contract import AssessOptions, join, msgspec_fault
 
 
 def test_pointer_tokens_are_escaped() -> None:

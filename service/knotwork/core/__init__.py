@@ -7,6 +7,7 @@ re-exported here.
 """
 
 from knotwork_contract import (
+    SECTIONS,
     Assessment,
     Comparison,
     Components,
@@ -29,7 +30,7 @@ from knotwork_contract import (
     VariableInflation,
 )
 
-from ._assess import SECTIONS, Options, assess, check_options
+from ._assess import Options, assess, check_options
 from ._components import principal_components
 from ._conditioning import condition_diagnostics
 from ._dependencies import DependencyReport, Spectrum, find_dependencies

@@ -9,7 +9,13 @@ from typing import TypedDict
 
 import numpy as np
 
-from knotwork_contract import Assessment, Conditioning, Notice, OptionsError, TermInflation
+from knotwork_contract import (
+    Assessment,
+    Conditioning,
+    Notice,
+    OptionsError,
+    TermInflation,
+)
 from knotwork_contract import check_options as contract_check_options
 
 from ._components import LIMIT_WITH_VIF_THRESHOLD, VIF_THRESHOLD, principal_components
@@ -24,19 +30,6 @@ from ._removal import removal_sequence
 from ._ridge import ridge_analysis
 from ._significance import collinearity_tests
 from ._summary import Summary
-
-#: Every section a caller can ask for; ``variables`` and ``dependencies`` are always computed.
-SECTIONS = (
-    "variables",
-    "terms",
-    "conditioning",
-    "tests",
-    "dependencies",
-    "removal",
-    "ridge",
-    "components",
-    "comparison",
-)
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
