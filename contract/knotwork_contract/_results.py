@@ -25,30 +25,6 @@ from collections.abc import Sequence
 
 import msgspec
 
-__all__ = [
-    "RESULT_TYPES",
-    "Assessment",
-    "Comparison",
-    "Components",
-    "Conditioning",
-    "Dependency",
-    "FarrarGlauber",
-    "Notice",
-    "RemedyRow",
-    "Removal",
-    "RemovalStep",
-    "RepairReport",
-    "Ridge",
-    "RidgeChoice",
-    "RidgePoint",
-    "StillHigh",
-    "Tangle",
-    "TermInflation",
-    "Tests",
-    "VariableF",
-    "VariableInflation",
-]
-
 
 class _Result(msgspec.Struct, frozen=True, kw_only=True):
     """Base of every result record: immutable, keyword-only, unknown fields ignored.

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 if TYPE_CHECKING:
-    from knotwork.core import Assessment
+    from knotwork_contract import Assessment
 
 REGIONS = ("hills", "lakes", "plains", "shore")
 

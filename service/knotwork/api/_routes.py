@@ -29,8 +29,7 @@ from knotwork.codecs import (
     decode_table_body,
     run,
 )
-from knotwork.core import Assessment
-from knotwork_contract import Problem, ProblemDocument
+from knotwork_contract import Assessment, Problem, ProblemDocument
 
 from ._context import current_request
 from ._metrics import COMPUTE_SECONDS

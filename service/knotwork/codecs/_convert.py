@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import replace
 
 from knotwork.core import (
-    Assessment,
     KnotworkError,
     Options,
     Summary,
@@ -15,7 +14,7 @@ from knotwork.core import (
     from_table,
     merge_moments,
 )
-from knotwork_contract import AssessOptions, Problem
+from knotwork_contract import Assessment, AssessOptions, Problem
 
 from ._errors import UnusableInput
 from ._prepared import CorrelationData, MomentsData, Prepared, TableData

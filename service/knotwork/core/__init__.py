@@ -2,33 +2,11 @@
 
 Build a :class:`Summary` with :func:`from_table`, :func:`from_frame`, :func:`from_correlation`,
 :func:`from_moments` or :func:`merge_moments`, then call :func:`assess`. The result records
-(:class:`Assessment` and its parts) are the shared contract's (:mod:`knotwork_contract`),
-re-exported here.
+(:class:`~knotwork_contract.Assessment` and its parts) are the shared contract's: import them
+from :mod:`knotwork_contract`.
 """
 
-from knotwork_contract import (
-    SECTIONS,
-    Assessment,
-    Comparison,
-    Components,
-    Conditioning,
-    Dependency,
-    FarrarGlauber,
-    Notice,
-    RemedyRow,
-    Removal,
-    RemovalStep,
-    RepairReport,
-    Ridge,
-    RidgeChoice,
-    RidgePoint,
-    StillHigh,
-    Tangle,
-    TermInflation,
-    Tests,
-    VariableF,
-    VariableInflation,
-)
+from knotwork_contract import SECTIONS
 
 from ._assess import Options, assess, check_options
 from ._components import principal_components
@@ -71,40 +49,20 @@ __all__ = [
     "MISSING_POLICIES",
     "REPAIR_POLICIES",
     "SECTIONS",
-    "Assessment",
-    "Comparison",
-    "Components",
-    "Conditioning",
-    "Dependency",
     "DependencyReport",
-    "FarrarGlauber",
     "InputError",
     "Interrupted",
     "KnotworkError",
     "MatrixError",
     "MissingValuesError",
-    "Notice",
     "OptionError",
     "Options",
     "Problem",
-    "RemedyRow",
-    "Removal",
-    "RemovalStep",
     "Repair",
-    "RepairReport",
-    "Ridge",
-    "RidgeChoice",
-    "RidgePoint",
     "Spectrum",
-    "StillHigh",
     "Summary",
-    "Tangle",
     "Term",
-    "TermInflation",
-    "Tests",
     "TooFewDataError",
-    "VariableF",
-    "VariableInflation",
     "assess",
     "check_options",
     "checkpoint",
