@@ -63,7 +63,7 @@ def summarize_dask(
     the whole table computed in pandas, up to rounding.
     """
     try:
-        import dask
+        from dask.delayed import delayed
     except ImportError as exc:
         raise ImportError("summarize_dask needs dask: pip install 'knotwork-client[dask]'") from exc
     if split_every < 2:
@@ -71,10 +71,10 @@ def summarize_dask(
     spec = _make_spec(response, weights, categorical, missing, columns)
     if spec.columns is not None:
         ddf = ddf[list(spec.columns)]
-    summarize_part = dask.delayed(_partition_summary, pure=True)
-    merge = dask.delayed(_merge_group, pure=True)
+    summarize_part = delayed(_partition_summary, pure=True)
+    merge = delayed(_merge_group, pure=True)
     level = [summarize_part(part, spec) for part in ddf.to_delayed()]
     while len(level) > 1:
         level = [merge(*level[i : i + split_every]) for i in range(0, len(level), split_every)]
-    result = dask.delayed(_finish, pure=True)(level[0])
+    result = delayed(_finish, pure=True)(level[0])
     return result.compute() if compute else result

@@ -195,7 +195,8 @@ def _arrow_stream(table: _Table) -> bytes:
     sink = pa.BufferOutputStream()
     with pa.ipc.new_stream(sink, batch.schema) as writer:
         writer.write_batch(batch)
-    return sink.getvalue().to_pybytes()
+    stream: bytes = sink.getvalue().to_pybytes()
+    return stream
 
 
 def _has_pyarrow() -> bool:

@@ -25,7 +25,8 @@ def _square(name: str, matrix: Any, p: int) -> list[list[float]]:
             f"{name} must be {p} x {p} (one row and column per name), got shape {a.shape}",
             [(f"/{name}", "wrong shape")],
         )
-    return a.tolist()
+    rows: list[list[float]] = a.tolist()
+    return rows
 
 
 def _vector(name: str, values: Any, p: int) -> list[float]:
@@ -35,7 +36,8 @@ def _vector(name: str, values: Any, p: int) -> list[float]:
             f"{name} must hold {p} numbers (one per name), got shape {a.shape}",
             [(f"/{name}", "wrong length")],
         )
-    return a.tolist()
+    listed: list[float] = a.tolist()
+    return listed
 
 
 def _terms(terms: Mapping[str, Sequence[str]] | None) -> dict[str, list[str]] | None:

@@ -12,6 +12,7 @@ from __future__ import annotations
 import hashlib
 import hmac
 from collections.abc import Iterable
+from typing import Any
 
 from litestar.connection import ASGIConnection
 from litestar.handlers.base import BaseRouteHandler
@@ -70,7 +71,9 @@ class TokenGate:
         if not self.accepts(token):
             raise ApiError(403, "forbidden", "the bearer token is not accepted")
 
-    async def guard(self, connection: ASGIConnection, handler: BaseRouteHandler) -> None:
+    async def guard(
+        self, connection: ASGIConnection[Any, Any, Any, Any], handler: BaseRouteHandler
+    ) -> None:
         """Litestar guard: enforce a token unless the route is marked public.
 
         A coroutine, because litestar runs a plain-function guard in a worker thread: one

@@ -70,7 +70,7 @@ class AccessLog:
         self.app = app
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
+        if scope["type"] != "http":  # type: ignore[comparison-overlap]  # lifespan scopes too
             await self.app(scope, receive, send)
             return
         incoming = None
@@ -102,7 +102,7 @@ class AccessLog:
 
         start = time.perf_counter()
         try:
-            await self.app(scope, counting_receive, counting_send)  # type: ignore[arg-type]
+            await self.app(scope, counting_receive, counting_send)
         finally:
             fields: dict[str, Any] = {
                 "request_id": request_id,

@@ -19,6 +19,7 @@ from __future__ import annotations
 import logging
 import traceback
 from collections.abc import Mapping
+from typing import Any
 
 import msgspec
 from litestar import Request, Response
@@ -157,7 +158,7 @@ def _log_unexpected(exc: BaseException) -> None:
     )
 
 
-def handle_exception(request: Request, exc: Exception) -> Response[bytes]:
+def handle_exception(request: Request[Any, Any, Any], exc: Exception) -> Response[bytes]:
     """The application's one exception handler: every error leaves as problem+json."""
     document, headers = problem_of(exc)
     return Response(

@@ -116,7 +116,8 @@ def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> As
         prepared = decode_assess(body, limits)
     else:
         prepared = decode_table_body(body, media, query, limits)
-    return run(prepared)
+    result: Assessment = run(prepared)
+    return result
 
 
 def _assess_many(

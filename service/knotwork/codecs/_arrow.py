@@ -152,7 +152,7 @@ def _numeric(column: pa.ChunkedArray, pointer: str) -> np.ndarray:
     source = column.type
     if pa.types.is_null(source):
         return np.full(len(column), np.nan)
-    values = column.cast(pa.float64(), safe=False).to_numpy(zero_copy_only=False)
+    values: np.ndarray = column.cast(pa.float64(), safe=False).to_numpy(zero_copy_only=False)
     if pa.types.is_floating(source) or pa.types.is_decimal(source):
         finite = np.isfinite(values)
         if values.size - np.count_nonzero(finite) > column.null_count:
@@ -167,7 +167,7 @@ def _numeric(column: pa.ChunkedArray, pointer: str) -> np.ndarray:
 
 
 def _is_numeric(kind: pa.DataType) -> bool:
-    return (
+    return bool(
         pa.types.is_integer(kind)
         or pa.types.is_floating(kind)
         or pa.types.is_decimal(kind)
@@ -177,7 +177,7 @@ def _is_numeric(kind: pa.DataType) -> bool:
 
 
 def _is_text(kind: pa.DataType) -> bool:
-    return (
+    return bool(
         pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_string_view(kind)
     )
 

@@ -7,7 +7,7 @@ wrong value is reported as ``/input/columns/<name>/<row>`` rather than msgspec's
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Any
 
 import msgspec
 import numpy as np
@@ -107,7 +107,7 @@ _NAMES = msgspec.json.Decoder(Annotated[list[Name], Meta(min_length=1)])
 _EMPTY_BODY = 'the body is empty; send a JSON document {"input": {...}, "options": {...}}'
 
 
-def _parse(decoder: msgspec.json.Decoder, body: Buffer, prefix: str):  # type: ignore[no-untyped-def]
+def _parse(decoder: msgspec.json.Decoder[Any], body: Buffer, prefix: str) -> Any:
     try:
         return decoder.decode(body)
     except msgspec.ValidationError as exc:

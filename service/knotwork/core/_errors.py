@@ -21,6 +21,18 @@ from __future__ import annotations
 
 from knotwork_contract import Problem
 
+# Problem is the contract's record, re-exported for the core's modules that raise with it.
+__all__ = [
+    "FitError",
+    "InputError",
+    "KnotworkError",
+    "MatrixError",
+    "MissingValuesError",
+    "OptionError",
+    "Problem",
+    "TooFewDataError",
+]
+
 
 class KnotworkError(ValueError):
     """Base class of every error the core raises for bad input or options."""

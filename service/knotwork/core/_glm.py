@@ -178,16 +178,20 @@ class _Family:
             return y.copy()
         if self.name == "binomial":
             mu = (a * y + 0.5) / (a + 1.0)
-            return np.log(mu / (1.0 - mu))
+            logit: np.ndarray = np.log(mu / (1.0 - mu))
+            return logit
         mean = float(np.dot(a, y) / np.sum(a))
-        return np.log((y + mean) / 2.0)
+        start: np.ndarray = np.log((y + mean) / 2.0)
+        return start
 
     def mean(self, eta: np.ndarray) -> np.ndarray:
         if self.name == "gaussian":
             return eta
         if self.name == "binomial":
-            return expit(eta)  # type: ignore[no-any-return]
-        return np.exp(eta)
+            fitted: np.ndarray = expit(eta)
+            return fitted
+        exp: np.ndarray = np.exp(eta)
+        return exp
 
     def working(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> tuple[np.ndarray, ...]:
         """Working weights w and score terms s = a (y - mu) mu'(eta) / V(mu), both at eta.

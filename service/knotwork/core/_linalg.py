@@ -26,7 +26,8 @@ def inverse_spd(a: np.ndarray) -> np.ndarray:
     inv, info = scipy.linalg.lapack.dpotri(c, lower=False)
     if info != 0:  # pragma: no cover - dpotrf succeeded, so dpotri cannot fail
         raise np.linalg.LinAlgError("inversion failed")
-    return np.triu(inv) + np.triu(inv, 1).T
+    full: np.ndarray = np.triu(inv) + np.triu(inv, 1).T
+    return full
 
 
 def logdet_spd(a: np.ndarray) -> float:

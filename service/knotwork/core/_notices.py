@@ -4,6 +4,9 @@ from __future__ import annotations
 
 from knotwork_contract import Notice
 
+# Notice is the contract's record, re-exported for the core's modules that build warnings.
+__all__ = ["CAUTIONS", "CODES", "Notice", "notice"]
+
 #: Every warning code the core emits, with its meaning. Codes are API: never rename one.
 CODES: dict[str, str] = {
     "exact_dependency": "some predictors are exact linear combinations of others (aliased)",

@@ -49,7 +49,8 @@ def _project_psd(matrix: np.ndarray) -> np.ndarray:
     values, vectors = np.linalg.eigh(matrix)
     kept = np.maximum(values, 0.0)
     projected = (vectors * kept) @ vectors.T
-    return 0.5 * (projected + projected.T)
+    symmetric: np.ndarray = 0.5 * (projected + projected.T)
+    return symmetric
 
 
 def _unit_diagonal_congruence(matrix: np.ndarray) -> np.ndarray:

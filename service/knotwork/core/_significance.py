@@ -218,6 +218,7 @@ def collinearity_tests(
             "and are not reported."
         )
     else:
+        assert factor is not None  # not singular
         inverse = scipy.linalg.cho_solve((factor, True), np.eye(p))
         scale = 1.0 / np.sqrt(np.diag(inverse))
         partial = -inverse * np.outer(scale, scale)
