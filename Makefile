@@ -9,11 +9,12 @@ PORT   ?= 8000
 
 .PHONY: install run demo test lint format openapi bench image-check clean
 
-$(STAMP): pyproject.toml constraints.txt clients/python/pyproject.toml contract/pyproject.toml
+$(STAMP): pyproject.toml constraints.txt clients/python/pyproject.toml contract/pyproject.toml \
+		harness/pyproject.toml
 	$(PYTHON) -m venv $(VENV)
 	PIP_CONSTRAINT=$(CURDIR)/constraints.txt $(BIN)/pip install --quiet \
 		--disable-pip-version-check -c constraints.txt \
-		-e ./contract -e '.[dev]' -e './clients/python[all]'
+		-e ./contract -e '.[dev]' -e './clients/python[all]' -e ./harness
 	touch $(STAMP)
 
 install: $(STAMP)

@@ -8,7 +8,7 @@ In one run, against ``python -m knotwork`` started here on a free 127.0.0.1 port
     with ``--quick``; every third sends only its local summary) straight to the service, then
     again through a proxy on loopback that drops connections, resets them, loses answers after
     the service did the work, truncates answers and answers 503 in the service's place, at
-    random from the seed (tests/reliability/rel_support.py, ``FaultProxy``). Side by side:
+    random from the seed (``knotwork_harness.fault_proxy.FaultProxy``). Side by side:
     time, requests, faults by kind, and results lost, duplicated or wrong (each model's VIFs
     are checked against statsmodels on its own rows);
 (b) a server holding more requests than it has slots and queue places gets SIGTERM: how many
@@ -23,27 +23,19 @@ from __future__ import annotations
 import argparse
 import json
 import signal
-import sys
 import tempfile
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parents[1]
-sys.path[:0] = [str(ROOT / "tests" / "reliability"), str(ROOT / "tests" / "e2e")]
+import httpx
 
-import httpx  # noqa: E402
-from e2e_support import serve  # noqa: E402
-from rel_support import (  # noqa: E402
-    FAULTS,
-    FaultPlan,
-    FaultProxy,
-    correlation_body,
-    run_screen,
-    tally_reports,
-    write_models,
-)
+from knotwork_harness.batch_models import correlation_body, run_screen, tally_reports, write_models
+from knotwork_harness.fault_proxy import FAULTS, FaultPlan, FaultProxy
+from knotwork_harness.live_server import serve
+
+ROOT = Path(__file__).resolve().parents[1]
 
 TOKEN = "bench-faults-token-0123456789ab"
 

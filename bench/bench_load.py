@@ -38,25 +38,19 @@ import asyncio
 import json
 import random
 import statistics
-import sys
 import tempfile
 import time
 from collections import Counter, defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parents[1]
-sys.path[:0] = [str(ROOT / "tests" / "reliability"), str(ROOT / "tests" / "e2e")]
+import httpx
 
-import httpx  # noqa: E402
-from e2e_support import serve  # noqa: E402
-from rel_support import (  # noqa: E402
-    correlation_body,
-    peak_memory_kib,
-    reset_peak,
-    resident_kib,
-    table_body,
-)
+from knotwork_harness.batch_models import correlation_body, table_body
+from knotwork_harness.live_server import serve
+from knotwork_harness.processes import peak_memory_kib, reset_peak, resident_kib
+
+ROOT = Path(__file__).resolve().parents[1]
 
 CONCURRENCY, QUEUE = 2, 4
 MAX_BODY = 4 * 1024 * 1024

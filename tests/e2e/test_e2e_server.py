@@ -19,7 +19,8 @@ from pathlib import Path
 
 import httpx
 import pytest
-from e2e_support import heavy_item, serve
+
+from knotwork_harness.live_server import heavy_item, serve
 
 TOKEN = "e2e-token-abcdefghijklmnop"
 # uvicorn re-raises SIGTERM after a graceful shutdown, so the exit status is that signal's.

@@ -29,16 +29,12 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
-from e2e_support import Server, serve
-from rel_support import (
-    JSON,
-    RawAnswer,
-    correlation_body,
-    peak_memory_kib,
-    raw_exchange,
-    reset_peak,
-    resident_kib,
-)
+
+from knotwork_harness import JSON
+from knotwork_harness.batch_models import correlation_body
+from knotwork_harness.live_server import Server, serve
+from knotwork_harness.processes import peak_memory_kib, reset_peak, resident_kib
+from knotwork_harness.raw_http import RawAnswer, raw_exchange
 
 MAX_BODY = 16 * 1024 * 1024
 LIMITS = {

@@ -36,9 +36,7 @@ schemathesis = pytest.importorskip("schemathesis")
 
 import fuzz_bodies  # noqa: E402
 import pyarrow as pa  # noqa: E402
-from e2e_support import Server, serve  # noqa: E402
 from hypothesis import HealthCheck, settings  # noqa: E402
-from rel_support import JSON, OPENAPI  # noqa: E402
 from schemathesis.checks import not_a_server_error  # noqa: E402
 from schemathesis.specs.openapi.checks import (  # noqa: E402
     content_type_conformance,
@@ -47,6 +45,9 @@ from schemathesis.specs.openapi.checks import (  # noqa: E402
     response_schema_conformance,
     status_code_conformance,
 )
+
+from knotwork_harness import JSON, OPENAPI  # noqa: E402
+from knotwork_harness.live_server import Server, serve  # noqa: E402
 
 TOKEN = "fuzz-token-0123456789abcdef"
 EXAMPLES = int(os.environ.get("KNOTWORK_FUZZ_EXAMPLES", "25"))

@@ -1,11 +1,11 @@
 """Faults: a batch job through a faulty network, a server stopped mid-load, a request too slow.
 
 - The client's batch command line (``knotwork-screen``) screens candidate models through
-  :class:`rel_support.FaultProxy`, which drops connections, resets them, loses answers after
-  the service did the work, truncates answers and answers 503 in the service's place, at
-  random from a seed. Every model must get exactly one report, with its own names and n, and
-  VIFs equal to statsmodels' on the same rows. ``bench/bench_faults.py`` runs 200 models; the
-  test runs fewer to stay quick.
+  :class:`knotwork_harness.fault_proxy.FaultProxy`, which drops connections, resets them,
+  loses answers after the service did the work, truncates answers and answers 503 in the
+  service's place, at random from a seed. Every model must get exactly one report, with its
+  own names and n, and VIFs equal to statsmodels' on the same rows. ``bench/bench_faults.py``
+  runs 200 models; the test runs fewer to stay quick.
 - A server given SIGTERM while it holds a full set of requests (every slot and queue place
   taken) answers each of them completely and correctly, refuses or completes later ones (never
   half an answer) and exits gracefully.
@@ -28,20 +28,19 @@ from pathlib import Path
 
 import httpx
 import pytest
-from e2e_support import Server, serve
 from numpy.testing import assert_allclose
-from rel_support import (
-    FaultPlan,
-    FaultProxy,
+
+from knotwork_client import AsyncClient, Correlation, Retry
+from knotwork_harness.batch_models import (
     check_reports,
     correlation_body,
     run_screen,
     table_body,
-    time_limit,
     write_models,
 )
-
-from knotwork_client import AsyncClient, Correlation, Retry
+from knotwork_harness.fault_proxy import FaultPlan, FaultProxy
+from knotwork_harness.live_server import Server, serve
+from knotwork_harness.processes import time_limit
 
 GRACEFUL = (0, -signal.SIGTERM)
 AUTH_TOKEN = "faults-token-0123456789abcdef"

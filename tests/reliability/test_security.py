@@ -29,10 +29,13 @@ import httpx
 import pyarrow as pa
 import pytest
 import yaml
-from e2e_support import serve
-from rel_support import JSON, ROOT, correlation_body, process_tree, raw_exchange
 
 from knotwork.api._auth import TokenGate
+from knotwork_harness import JSON, ROOT
+from knotwork_harness.batch_models import correlation_body
+from knotwork_harness.live_server import serve
+from knotwork_harness.processes import process_tree
+from knotwork_harness.raw_http import raw_exchange
 
 TOKEN = "sec-token-Z8f2Qk9LmN4pR7tV1wX3"
 OTHER = "sec-token-older-aB3cD5eF7gH9jK1m"  # a second configured token (rotation)

@@ -16,7 +16,7 @@ from pathlib import Path
 import httpx
 import numpy as np
 
-HOST = "127.0.0.1"
+from knotwork_harness import HOST
 
 
 def free_port() -> int:
