@@ -16,7 +16,7 @@ Everything here is pure numpy/scipy and is wired into the request options elsewh
 from __future__ import annotations
 
 import math
-from collections.abc import Collection, Mapping, Sequence
+from collections.abc import Callable, Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -31,11 +31,13 @@ from ._removal import removal_sequence
 from ._summary import Summary
 
 METHODS = ("normal", "bootstrap")
-#: Fewest and most bootstrap replicates. Each replicate is one weighted Gram product over the
-#: rows, O(n p^2) work (bench/bench_uncertainty.py: 1,000 replicates at n = 10,000, p = 20 take
-#: about a second), plus one removal sequence when some inflation is near the threshold. Below
-#: 100 the 2.5% and 97.5% percentiles rest on two or three replicates each; above 10,000 the
-#: Monte Carlo error of a 95% end point is far below its sampling error, so more only costs.
+#: Fewest and most bootstrap replicates. Each replicate costs one weighted Gram product over the
+#: rows, O(n p^2) work, plus one removal sequence when some inflation is near the threshold or
+#: above it (bench/bench_uncertainty.py: 1,000 replicates at n = 10,000, p = 20 take 0.5-0.8 s
+#: here, the removal running in every one); time grows linearly with the replicates. Each end
+#: of a 95% percentile interval rests on about B/40 replicates, 2.5 at the minimum of 100;
+#: beyond 10,000 the Monte Carlo error of an end is far below its sampling error, so more
+#: replicates only cost time.
 REPLICATES_MIN = 100
 REPLICATES_MAX = 10_000
 #: Largest seed accepted (numpy's generators take any non-negative integer; this keeps it an
@@ -50,7 +52,7 @@ SERIES_TAIL = 1e-13
 EXACT_TERMS = 1 << 13
 #: Quadrature points per smoothness scale of the summand, and the smallest scale (in terms)
 #: from which a sum is replaced by an integral.
-_KAPPA = 6.0
+_KAPPA = 4.0
 _SMOOTH = 16.0
 #: Segments sharing one running sum in :func:`_segment_cumsum`.
 _SEGMENTS = 64
@@ -191,10 +193,12 @@ def check_uncertainty(options: UncertaintyOptions, input_kind: str | None = None
 # Fisher's distribution of R^2
 
 
-def _first_true(pred: object, left: np.ndarray, right: np.ndarray, steps: int) -> np.ndarray:
-    """Bisect integer brackets where ``pred(left)`` is False (or left = -1) and ``pred(right)``
-    True; returns a right end at most ``(right - left) / 2**steps`` above the first True."""
-    f = pred  # a callable on float arrays of term indices
+def _bisect(
+    pred: Callable[[np.ndarray], np.ndarray], left: np.ndarray, right: np.ndarray, steps: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Narrow integer brackets where ``pred(left)`` is False (or left = -1) and ``pred(right)``
+    True, by at most ``steps`` halvings; returns the final (left, right): pred stays False at
+    every left end and True at every right end."""
     left = left.copy()
     right = right.copy()
     for _ in range(steps):
@@ -202,10 +206,10 @@ def _first_true(pred: object, left: np.ndarray, right: np.ndarray, steps: int) -
         if not open_.any():
             break
         mid = np.floor((left + right) / 2)
-        hit = f(mid)  # type: ignore[operator]
+        hit = pred(mid)
         right = np.where(open_ & hit, mid, right)
         left = np.where(open_ & ~hit, mid, left)
-    return right
+    return left, right
 
 
 def _window(
@@ -247,11 +251,12 @@ def _window(
     # (lo, inner], or it is lo itself.
     inner = np.clip(np.floor(centre), lo, hi)
     start = np.where(upper_done(inner), lo - 1.0, inner)
-    hi = _first_true(upper_done, start, hi, 6)
+    _, hi = _bisect(upper_done, start, hi, 6)
     inner = np.minimum(inner, hi)
     stop = np.where(lower_done(inner), inner, hi)
-    first = _first_true(lower_done, np.where(lo > 0, lo, -1.0), stop, 6)
-    lo = np.maximum(first - 1.0, 0.0)
+    # The window must start where J is still <= tail: the bracket's left end, not its right.
+    below, _ = _bisect(lower_done, np.where(lo > 0, lo, -1.0), stop, 6)
+    lo = np.maximum(below, 0.0)
     return lo, hi
 
 
@@ -266,10 +271,15 @@ class _Series:
     Two ways to sum a window:
 
     - term by term (windows of at most ``EXACT_TERMS`` terms, the usual case): weights in log
-      space, :math:`\\log w_i = c_i + i \\log\\rho^2 + a \\log(1 - \\rho^2)` with
-      :math:`c_i = \\ln\\Gamma(a + i) - \\ln\\Gamma(a) - \\ln i!` from ``gammaln``; the terms
-      below the window (where :math:`I_i = 1` to within the tail) are added exactly as the
-      negative-binomial CDF :math:`P(X < lo) = I_{1-\\rho^2}(a, lo)`.
+      space relative to the window's first term, :math:`\\log w_i = \\log w_{lo}
+      + (i - lo)\\log\\rho^2 + c_i` with :math:`c_i = \\ln\\frac{\\Gamma(a + i)\\, lo!}
+      {\\Gamma(a + lo)\\, i!}` (:func:`_lgamma_diff`) and :math:`\\log w_{lo}` in Loader's
+      saddle-point form (:func:`_nb_logpmf`), so no log term is a small remainder of huge
+      ``gammaln`` values; the terms below the window (where :math:`I_i = 1` to within the
+      tail) are added exactly as the negative-binomial CDF
+      :math:`P(X < lo) = I_{1-\\rho^2}(a, lo)`. The beta CDFs :math:`I_i` and
+      :math:`J_i = 1 - I_i` are sums of the positive steps :math:`D_i` from the end where each
+      is small, so both keep their relative accuracy.
     - by quadrature (longer windows, which come with a large n and a large VIF): summation by
       parts turns the series into :math:`\\sum_m D_m P(X \\le m)` with
       :math:`D_m = I_m - I_{m+1} = \\frac{\\Gamma(a + m)}{\\Gamma(h + m + 1)\\Gamma(b)}
@@ -281,6 +291,15 @@ class _Series:
       :math:`e^{-2\\pi^2\\kappa^2}` for such bell-shaped integrands; Trefethen & Weideman
       2014). Terms below the smooth region are summed one by one, joined to the integral by a
       smooth ``erfc`` partition of unity so that neither part has a sharp end.
+
+    References
+    ----------
+    .. [1] Loader, C. (2000). Fast and accurate computation of binomial probabilities.
+       Technical note (the algorithm behind R's ``dbinom`` and ``dnbinom``).
+    .. [2] Trefethen, L. N. and Weideman, J. A. C. (2014). The exponentially convergent
+       trapezoidal rule. SIAM Review 56(3), 385-458.
+    .. [3] Maechler, M. (2012). Accurately computing log(1 - exp(-|a|)). Vignette of the R
+       package Rmpfr.
     """
 
     def __init__(self, x: np.ndarray, y: np.ndarray, n: float, k: int, tail: float) -> None:
@@ -298,7 +317,7 @@ class _Series:
         self.exact = np.flatnonzero(self.terms <= EXACT_TERMS)
         self.quad = np.flatnonzero(self.terms > EXACT_TERMS)
         self._build_exact(lx, ly, x, y)
-        self._build_quad(lx, ly)
+        self._build_quad(x, y)
         self.count = e_count
 
     # -- term by term ---------------------------------------------------------------------
@@ -313,24 +332,34 @@ class _Series:
         first = float(lo.min()) if el.size else 0.0
         at = np.arange(int(m.sum())) - np.repeat(starts - (lo - first).astype(np.intp), m)
         i = at + first
-        # log D_i: the beta CDF step I_i - I_{i+1}; c_i: the weights' constant part. Both from
-        # betaln, which keeps its accuracy for huge arguments (a difference of two ln Gamma
-        # values of size 1e14 would not). They depend on i only: when the windows overlap
-        # (many predictors, one n), they are tabulated once over the union of the windows.
+        step = i - np.repeat(lo, m)
+        # Every term relative to the window's first one: log w_i - log w_lo =
+        # (i - lo) log rho^2 + c_i and log D_i - log D_lo = (i - lo) log x + e_i, with c_i and
+        # e_i differences of ln Gamma taken in the stable form of _lgamma_diff. The first terms
+        # themselves are negative-binomial probabilities in the saddle-point form of
+        # _nb_logpmf. Summing the huge ln Gamma values directly would cost about
+        # eps * ln Gamma(a + i) (1e-9 at n = 1e6) in every log term.
         span = int(self.hi[el].max() - first) + 1 if el.size else 0
         if 0 < span <= i.shape[0]:
+            # One n, many overlapping windows: tabulate over their union, from its start.
             r = first + np.arange(span, dtype=float)
-            d_part = _log_d_part(r, h, b)[at]
-            c = _log_weight_part(r, a)[at]
+            g_a = _lgamma_diff(a + r, a + first)
+            g_1 = _lgamma_diff(r + 1.0, first + 1.0)
+            g_h = _lgamma_diff(h + r + 1.0, h + first + 1.0)
+            base = (lo - first).astype(np.intp)
+            c = (g_a - g_1)[at] - np.repeat((g_a - g_1)[base], m)
+            e = (g_a - g_h)[at] - np.repeat((g_a - g_h)[base], m)
         else:
-            d_part = _log_d_part(i, h, b)
-            c = _log_weight_part(i, a)
-        log_d = i + h
-        log_d *= np.repeat(lx[el], m)
-        log_d += np.repeat(b * ly[el], m)
-        log_d += d_part
+            lo_r = np.repeat(lo, m)
+            g_a = _lgamma_diff(a + i, a + lo_r)
+            c = g_a - _lgamma_diff(i + 1.0, lo_r + 1.0)
+            e = g_a - _lgamma_diff(h + i + 1.0, h + lo_r + 1.0)
+        log_d = step * np.repeat(lx[el], m)
+        log_d += np.repeat(_nb_logpmf(h + lo, b, y[el], x[el]), m)
+        log_d += e
         d = np.exp(log_d, out=log_d)
         self.c = c
+        self.step = step
         self.i = i
         self.starts = starts
         self.counts = m
@@ -344,7 +373,6 @@ class _Series:
         beyond += np.repeat(i_top, m)
         self.big_i = beyond
         self.big_j = upto
-        self.lo_betaln = np.where(lo > 0, special.betaln(a, np.maximum(lo, 1.0)), 0.0)
 
     def _eval_exact(
         self, s: np.ndarray, pick: np.ndarray
@@ -356,19 +384,22 @@ class _Series:
             return z, z, z
         if pick.shape[0] == self.exact.shape[0]:
             counts, starts = self.counts, self.starts
-            i, c, big_i, big_j = self.i, self.c, self.big_i, self.big_j
+            i, step, c = self.i, self.step, self.c
+            big_i, big_j = self.big_i, self.big_j
         else:
             counts = self.counts[pick]
             starts = np.zeros(pick.shape[0], dtype=np.intp)
             np.cumsum(counts[:-1], out=starts[1:])
             pos = np.arange(int(counts.sum())) + np.repeat(self.starts[pick] - starts, counts)
-            i, c, big_i, big_j = self.i[pos], self.c[pos], self.big_i[pos], self.big_j[pos]
+            i, step, c = self.i[pos], self.step[pos], self.c[pos]
+            big_i, big_j = self.big_i[pos], self.big_j[pos]
         el = self.exact[pick]
+        lo, hi = self.lo[el], self.hi[el]
         p, r2, lr = _rho(s)
         t = np.repeat(lr, counts)
-        t *= i
+        t *= step
         t += c
-        t -= np.repeat(a * s, counts)
+        t += np.repeat(_nb_logpmf(lo, a, p, r2), counts)
         # Weights below e^-600 add nothing; clipping keeps exp (and the products below) out of
         # subnormal numbers, which are many times slower.
         np.maximum(t, -600.0, out=t)
@@ -379,34 +410,50 @@ class _Series:
         fi = np.add.reduceat(wi, starts)
         w *= big_j
         sf = np.add.reduceat(w, starts)
-        lo, hi = self.lo[el], self.hi[el]
         below = np.where(lo > 0, _ibeta(a, np.maximum(lo, 1.0), p, r2), 0.0)
-        above = _ibeta(hi + 1.0, a, r2, p)
-        # d/ds of the negative-binomial CDF below the window (p = e^-s, dp/ds = -p).
-        d_below = np.where(lo > 0, -np.exp(-a * s + (lo - 1.0) * lr - self.lo_betaln[pick]), 0.0)
+        above = 1.0 - _ibeta(a, hi + 1.0, p, r2)  # P(X > hi) = 1 - I_p(a, hi + 1)
+        # d/ds of the negative-binomial CDF below the window (p = e^-s, dp/ds = -p):
+        # -p^a (1 - p)^(lo - 1) / B(a, lo) = -(a + lo - 1) P(X = lo - 1).
+        last = np.maximum(lo - 1.0, 0.0)
+        d_below = np.where(lo > 0, -(a + last) * np.exp(_nb_logpmf(last, a, p, r2)), 0.0)
         df = fi / np.expm1(s) - a * f + d_below
         return f + below, sf + above, df
 
     # -- by quadrature --------------------------------------------------------------------
 
-    def _build_quad(self, lx: np.ndarray, ly: np.ndarray) -> None:
+    def _build_quad(self, x: np.ndarray, y: np.ndarray) -> None:
         a, b, h = self.a, self.b, self.h
+        qd = self.quad
+        lo, hi = self.lo[qd], self.hi[qd]
+        smooth = _scale(lo, a, b, h) >= _SMOOTH
+        # Smooth from the window's start (the usual case): trapezoidal nodes in log t for all
+        # such windows at once; the others start term by term (_quadrature_nodes).
+        rel = _scale(hi, a, b, h) / hi / _KAPPA
+        u0, u1 = np.log(np.maximum(lo, 1.0)), np.log(hi)
+        steps = np.maximum(np.ceil((u1 - u0) / rel), 2.0).astype(np.intp)
+        du = (u1 - u0) / steps
         ts: list[np.ndarray] = []
         logws: list[np.ndarray] = []
-        for q in self.quad:
-            lo, hi = float(self.lo[q]), float(self.hi[q])
-            t, logw = _quadrature_nodes(lo, hi, a, b, h)
-            log_d = (h + t) * lx[q] + b * ly[q] + _log_d_part(t, h, b)
+        for e in range(qd.shape[0]):
+            if smooth[e]:
+                u = u0[e] + du[e] * np.arange(steps[e] + 1)
+                t = np.exp(u)
+                logw = np.log(du[e]) + u
+                logw[[0, -1]] -= math.log(2.0)
+            else:
+                t, logw = _quadrature_nodes(float(lo[e]), float(hi[e]), a, b, h)
             ts.append(t)
-            logws.append(logw + log_d)
+            logws.append(logw)
         counts = np.array([t.shape[0] for t in ts], dtype=np.intp)
         self.q_counts = counts
         self.q_starts = np.zeros(counts.shape[0], dtype=np.intp)
         np.cumsum(counts[:-1], out=self.q_starts[1:])
-        self.q_seg = np.repeat(np.arange(counts.shape[0]), counts)
-        self.q_t = np.concatenate(ts) if ts else np.zeros(0)
-        self.q_w = np.exp(np.concatenate(logws)) if ts else np.zeros(0)
-        self.q_betaln = special.betaln(a, self.q_t + 1.0)
+        seg = np.repeat(np.arange(counts.shape[0]), counts)
+        self.q_t = t_all = np.concatenate(ts) if ts else np.zeros(0)
+        log_d = _nb_logpmf(h + t_all, b, y[qd][seg], x[qd][seg])
+        self.q_w = np.exp(np.concatenate(logws) + log_d) if ts else np.zeros(0)
+        # For the derivative only (Newton's steps), where 1e-9 relative is plenty.
+        self.q_betaln = special.betaln(a, t_all + 1.0)
 
     def _eval_quad(
         self, s: np.ndarray, pick: np.ndarray
@@ -424,9 +471,9 @@ class _Series:
         t, w = self.q_t[pos], self.q_w[pos]
         sv = s[seg]
         p, r2, lr = _rho(sv)
-        cdf = _ibeta(a, t + 1.0, p, r2)
-        sf = _ibeta(t + 1.0, a, r2, p)
-        dens = -np.exp(-a * sv + t * lr - self.q_betaln[pos])
+        cdf = _ibeta(a, t + 1.0, p, r2)  # P(X <= t)
+        sf = 1.0 - cdf
+        dens = -np.exp(-a * sv + t * lr - self.q_betaln[pos])  # -p^a (1-p)^t / B(a, t + 1)
         f = np.add.reduceat(w * cdf, starts)
         g = np.add.reduceat(w * sf, starts) + self.s0[self.quad[pick]]
         df = np.add.reduceat(w * dens, starts)
@@ -454,10 +501,13 @@ class _Series:
 
 
 def _ibeta(a: object, b: object, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Regularized incomplete beta :math:`I_x(a, b)` given both x and y = 1 - x.
+    """Regularized incomplete beta :math:`I_x(a, b)` given both x and y = 1 - x, to an
+    absolute accuracy of about machine epsilon.
 
     ``betainc`` forms 1 - x itself, which loses the digits of a small y; for x > 1/2 this
-    uses :math:`I_x(a, b) = 1 - I_y(b, a)` (``betaincc``) with the y given.
+    uses :math:`I_x(a, b) = 1 - I_y(b, a)` with the y given. (``betaincc`` would also keep the
+    relative accuracy of a small result, at about six times the cost; every use here needs
+    only the absolute accuracy.)
     """
     a_, b_, x_, y_ = np.broadcast_arrays(
         np.asarray(a, dtype=float), np.asarray(b, dtype=float), x, y
@@ -466,7 +516,7 @@ def _ibeta(a: object, b: object, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     low = x_ <= 0.5
     out[low] = special.betainc(a_[low], b_[low], x_[low])
     high = ~low
-    out[high] = special.betaincc(b_[high], a_[high], y_[high])
+    out[high] = 1.0 - special.betainc(b_[high], a_[high], y_[high])
     return out
 
 
@@ -479,17 +529,97 @@ def _rho(s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return p, r2, lr
 
 
-def _log_d_part(i: np.ndarray, h: float, b: float) -> np.ndarray:
-    """:math:`\\ln[\\Gamma(h + i + b) / (\\Gamma(h + i + 1)\\Gamma(b))]
-    = -\\ln(h + i) - \\ln B(h + i, b)`."""
-    al = i + h
-    return -np.log(al) - special.betaln(al, b)
+_HALF_LOG_2PI = 0.5 * math.log(2.0 * math.pi)
 
 
-def _log_weight_part(i: np.ndarray, a: float) -> np.ndarray:
-    """:math:`\\ln[\\Gamma(a + i) / (\\Gamma(a)\\, i!)] = -\\ln i - \\ln B(a, i)` (0 at i = 0)."""
-    safe = np.maximum(i, 1.0)
-    return np.where(i > 0, -np.log(safe) - special.betaln(a, safe), 0.0)
+def _stirlerr(z: np.ndarray) -> np.ndarray:
+    """Stirling's error :math:`\\ln\\Gamma(z + 1) - (z + 1/2)\\ln z + z - \\ln\\sqrt{2\\pi}` for
+    z > 0: its asymptotic series above 15 (next term below 3e-16), ``gammaln`` below."""
+    z = np.asarray(z, dtype=float)
+    out = np.empty(z.shape)
+    big = z > 15.0
+    zb = z[big]
+    z2 = zb * zb
+    out[big] = (1 / 12 - (1 / 360 - (1 / 1260 - (1 / 1680 - 1 / (1188 * z2)) / z2) / z2) / z2) / zb
+    zs = z[~big]
+    out[~big] = special.gammaln(zs + 1.0) - (zs + 0.5) * np.log(zs) + zs - _HALF_LOG_2PI
+    return out
+
+
+def _lgamma_diff(u: np.ndarray, v: np.ndarray | float) -> np.ndarray:
+    """:math:`\\ln\\Gamma(u) - \\ln\\Gamma(v)` without the cancellation of two huge values.
+
+    For u, v > 16: :math:`(v - 1/2)\\,\\mathrm{log1p}(d/v) + d\\ln u - d` plus the
+    difference of Stirling errors (:math:`\\ln\\Gamma(z) = (z - 1/2)\\ln z - z + \\ln\\sqrt{2\\pi}
+    + \\mathrm{stirlerr}(z)`), with d = u - v (exact here: the arguments are integers or
+    half-integers apart); otherwise ``gammaln`` of each (then the difference is not a small
+    remainder of large values).
+    """
+    u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
+    out = np.empty(u.shape)
+    big = (u > 16.0) & (v > 16.0)
+    ub, vb = u[big], v[big]
+    d = ub - vb
+    out[big] = (vb - 0.5) * np.log1p(d / vb) + d * np.log(ub) - d + _stirlerr(ub) - _stirlerr(vb)
+    out[~big] = special.gammaln(u[~big]) - special.gammaln(v[~big])
+    return out
+
+
+def _bd0(x: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """:math:`x \\ln(x/m) + m - x` (the deviance term of Loader 2000), stably for x near m."""
+    x, m = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(m, dtype=float))
+    out = np.empty(x.shape)
+    close = np.abs(x - m) < 0.1 * (x + m)
+    xc, mc = x[close], m[close]
+    v = (xc - mc) / (xc + mc)
+    total = (xc - mc) * v
+    term = 2.0 * xc * v
+    v2 = v * v
+    for j in range(1, 60):
+        term = term * v2
+        add = term / (2 * j + 1)
+        total = total + add
+        if not np.any(np.abs(add) > 1e-17 * np.abs(total)):
+            break
+    out[close] = total
+    far = ~close
+    with np.errstate(divide="ignore"):
+        out[far] = special.xlogy(x[far], x[far] / m[far]) + m[far] - x[far]
+    return out
+
+
+def _nb_logpmf(k: np.ndarray, r: float, p: np.ndarray, q: np.ndarray) -> np.ndarray:
+    """Log of :math:`\\frac{\\Gamma(r + k)}{\\Gamma(r)\\,\\Gamma(k + 1)} p^r q^k` for real k >= 0,
+    with q = 1 - p given separately.
+
+    Loader's saddle-point form (as in R's ``dnbinom``): the negative-binomial probability is
+    r/(r + k) times the binomial probability of r successes in r + k trials, whose log is
+    :math:`\\mathrm{stirlerr}(n) - \\mathrm{stirlerr}(r) - \\mathrm{stirlerr}(k)
+    - \\mathrm{bd0}(r, n p) - \\mathrm{bd0}(k, n q) - \\tfrac12\\ln(2\\pi r k / n)` with n = r + k;
+    every piece is small where the probability is not, so the result keeps its relative
+    accuracy for arguments in the millions.
+    """
+    k, p, q = np.broadcast_arrays(
+        np.asarray(k, dtype=float), np.asarray(p, dtype=float), np.asarray(q, dtype=float)
+    )
+    out = np.empty(k.shape)
+    zero = k <= 0.0
+    with np.errstate(divide="ignore"):
+        out[zero] = r * np.log(p[zero])
+    kk, pp, qq = k[~zero], p[~zero], q[~zero]
+    n = r + kk
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lc = (
+            _stirlerr(n)
+            - _stirlerr(np.full(kk.shape, r))
+            - _stirlerr(kk)
+            - _bd0(np.full(kk.shape, r), n * pp)
+            - _bd0(kk, n * qq)
+        )
+        log_n = np.log(n)
+        # ln(r/n) + lc - ln(2 pi r k / n) / 2
+        out[~zero] = 0.5 * math.log(r) - 0.5 * log_n - 0.5 * np.log(kk) + lc - _HALF_LOG_2PI
+    return out
 
 
 def _segment_cumsum(
@@ -517,6 +647,13 @@ def _segment_cumsum(
         np.subtract(np.repeat(last, cnt), cs, out=beyond[lo:hi])
         beyond[lo:hi] += part
     return upto, beyond
+
+
+def _scale(t: np.ndarray, a: float, b: float, h: float) -> np.ndarray:
+    """Smallest local width (in terms) of the summand near term t: of the negative-binomial
+    CDF step (:func:`_sigma_w`) and of the beta CDF step D (:func:`_sigma_d`)."""
+    al = h + t
+    return np.minimum(np.sqrt((t + 1.0) * (a + t) / a), np.sqrt(al * (al + b) / b))
 
 
 def _sigma_w(t: float, a: float) -> float:
@@ -692,20 +829,27 @@ def r2_cdf(x: object, rho2: object, n: object, k: object) -> np.ndarray:
     added exactly as :math:`P(X < lo) = I_{1-\\rho^2}(a, lo)` and the mass above dropped.
     Because :math:`0 \\le I_i \\le 1` is monotone in i, the error is at most
     :math:`\\varepsilon \\max(P(X < lo), P(X > hi)) \\le \\varepsilon`, for every
-    :math:`\\rho^2`, plus rounding (about the number of terms times machine epsilon). The window
-    comes from the beta side, so it does not depend on :math:`\\rho^2`: it starts near
-    :math:`b x / (1 - x) - k/2` terms, where the negative-binomial mass sits at the
-    :math:`\\rho^2` that matter, and never at 0 when n is large.
+    :math:`\\rho^2`, plus rounding (in the tests the CDF and its complement, two separate
+    sums, add to 1 within 1e-12, also at n = 1e6 and VIF = 1e12).
+
+    Choice of window: the negative-binomial weights have mean :math:`a\\rho^2/(1 - \\rho^2)` and
+    variance :math:`a\\rho^2/(1 - \\rho^2)^2`, so a window of their mean plus or minus some
+    standard deviations would move with every :math:`\\rho^2` a root search tries. The beta
+    side gives a window that does not: it is centred near :math:`b x/(1 - x) - k/2` terms with
+    spread :math:`\\sqrt{\\alpha(\\alpha + b)/b}`, :math:`\\alpha = b x/(1 - x)` (of the same
+    order as the weights' spread at the :math:`\\rho^2` where the CDF is neither 0 nor 1), it
+    never starts at 0 when n is large, and the beta CDFs are computed once per observed value.
 
     Verification: ``tests/core/test_uncertainty.py`` compares the CDF with a direct simulation
     of :math:`R^2` (numpy regressions on normal samples) and, at :math:`\\rho = 0`, with
     ``scipy.stats.beta``; the quadrature used for very long windows is checked against the
     term-by-term sum.
 
-    Implementation: :class:`_Series` (``gammaln`` and ``betainc`` from scipy.special, weights
-    in log space, the beta CDFs by sums of positive steps from the end where each is small).
-    Inputs are parameterised by :math:`s = -\\log(1 - \\rho^2)`, so that :math:`\\rho^2` near 1
-    keeps its digits.
+    Implementation: :class:`_Series` (``betainc``, ``betaincc`` and ``gammaln`` from
+    scipy.special; weights in log space; windows longer than ``EXACT_TERMS`` by quadrature).
+    Inputs are parameterised by :math:`s = -\\log(1 - \\rho^2)` and incomplete beta functions
+    are given both x and 1 - x, so that :math:`\\rho^2` and :math:`R^2` near 1 keep their
+    digits.
 
     References
     ----------
@@ -936,10 +1080,12 @@ def normal_intervals(
     Implementation: in :math:`s = \\log \\mathrm{VIF} = -\\log(1 - \\rho^2)` (so bounds near
     :math:`\\rho^2 = 1` keep their relative accuracy), all bounds at once: :class:`_Series`
     evaluates the CDF and its derivative for every predictor in one pass, and a safeguarded
-    Newton iteration on the probit scale (:func:`_invert`) needs about five passes. Brent's
-    method one bound at a time took about 3x the goal of 50 ms at p = 200 (bench). The series
-    truncation is relaxed to :math:`10^{-8}\\alpha/2` for levels so high that 1e-13 would
-    matter.
+    Newton iteration on the probit scale (:func:`_invert`) needs about four passes per bound
+    after one shared pass at the start. Brent's method (``scipy.optimize.brentq``) one bound
+    at a time on the same series gives the same bounds (to 1e-12 in the bench) but took
+    seconds at p = 200, where this takes 20-30 ms (bench/bench_uncertainty.py). For levels so
+    high that :math:`\\alpha/2` nears the series' truncation bound, the bound is tightened to
+    :math:`10^{-8}\\alpha/2`.
 
     References
     ----------
@@ -1435,7 +1581,7 @@ def bootstrap_intervals(
     sequence runs only in replicates where some inflation is within 1e-8 of the threshold or
     above it (elsewhere it drops nothing, as :func:`removal_sequence` would). The cooperative
     stop is checked between blocks. Cost: O(B n p^2) for the sums plus one removal sequence per
-    replicate that needs it; about one second for 1,000 replicates at n = 10,000, p = 20
+    replicate that needs it; 0.5-0.8 s for 1,000 replicates at n = 10,000, p = 20
     (bench/bench_uncertainty.py).
 
     References
