@@ -300,6 +300,8 @@ class _Series:
        trapezoidal rule. SIAM Review 56(3), 385-458.
     .. [3] Maechler, M. (2012). Accurately computing log(1 - exp(-|a|)). Vignette of the R
        package Rmpfr.
+
+    (The details of these three references are from memory, not checked.)
     """
 
     def __init__(self, x: np.ndarray, y: np.ndarray, n: float, k: int, tail: float) -> None:
