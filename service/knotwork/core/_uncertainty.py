@@ -22,9 +22,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
+from knotwork_contract import escape as esc
+
 from ._dependencies import NULL_RTOL, Spectrum, find_dependencies
 from ._errors import InputError, KnotworkError, OptionError, Problem, TooFewDataError
-from ._errors import pointer_escape as esc
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
 from ._removal import removal_sequence
@@ -1759,7 +1760,9 @@ def bootstrap_intervals(
         share_d = float(drop_share[u]) if drop_share is not None else None
         info = full_terms[t]
         if t not in term_live:
-            term_out.append(TermSpread(tname, info.columns, None, None, None, 1.0, share_d, True))
+            term_out.append(
+                TermSpread(tname, tuple(info.columns), None, None, None, 1.0, share_d, True)
+            )
             continue
         c = term_live.index(t)
         interval = scaled_interval = None
@@ -1774,7 +1777,7 @@ def bootstrap_intervals(
         term_out.append(
             TermSpread(
                 name=tname,
-                columns=info.columns,
+                columns=tuple(info.columns),
                 gvif=info.gvif,
                 gvif_interval=interval,
                 gvif_scaled_interval=scaled_interval,
@@ -1793,7 +1796,7 @@ def bootstrap_intervals(
         singular_replicates=replicates - used,
         variables=tuple(variables),
         terms=tuple(term_out),
-        kept=kept_full,
+        kept=tuple(kept_full),
         share_same_kept=float(same_kept[usable].mean()) if used else None,
         notes=tuple(notes),
     )
