@@ -10,6 +10,7 @@ from ._pointers import escape, join, msgspec_fault
 from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
 from ._requests import (
+    DETAILS,
     SECTIONS,
     AssessOptions,
     AssessRequest,
@@ -35,6 +36,8 @@ from ._results import (
     Dependency,
     FarrarGlauber,
     Notice,
+    PartialPair,
+    ProportionRow,
     RemedyRow,
     Removal,
     RemovalStep,
@@ -51,6 +54,7 @@ from ._results import (
 )
 
 __all__ = [
+    "DETAILS",
     "QUERY_PARAMETERS",
     "RESULT_TYPES",
     "SECTIONS",
@@ -72,8 +76,10 @@ __all__ = [
     "Name",
     "Notice",
     "OptionsError",
+    "PartialPair",
     "Problem",
     "ProblemDocument",
+    "ProportionRow",
     "QueryError",
     "QueryParameter",
     "RemedyRow",

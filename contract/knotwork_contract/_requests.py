@@ -22,6 +22,7 @@ from msgspec import Meta, Raw, Struct
 from ._pointers import msgspec_fault
 
 __all__ = [
+    "DETAILS",
     "SECTIONS",
     "AssessOptions",
     "AssessRequest",
@@ -63,6 +64,10 @@ Section = Literal[
     "components",
     "comparison",
 ]
+
+Detail = Literal["summary", "full"]
+#: How much an answer carries; the first is the default.
+DETAILS: tuple[str, ...] = get_args(Detail)
 
 #: The parts of an assessment a client may ask for (all of them by default), in answer order;
 #: the core computes exactly these (``variables`` and ``dependencies`` always).
@@ -316,6 +321,16 @@ class AssessOptions(_Wire, frozen=True):
     components: (
         Annotated[ComponentsOptions, Meta(description="Settings of principal components.")] | None
     ) = None
+    detail: Annotated[
+        Detail,
+        Meta(
+            description=(
+                "How much the answer carries: summary (everything per variable and term, and "
+                "O(p) of every section: the high-index rows of the proportions, the strongest "
+                "partial correlations) or full (every p x p table as well)."
+            )
+        ),
+    ] = "summary"
 
 
 class AssessRequest(_Wire, frozen=True):

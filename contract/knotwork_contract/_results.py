@@ -131,6 +131,25 @@ class Tangle(_Result, frozen=True):
     proportions: Sequence[float] = ()
 
 
+class ProportionRow(_Result, frozen=True):
+    """The variance-decomposition proportions of one component with a high condition index.
+
+    Attributes
+    ----------
+    component
+        Its position in ``eigenvalues`` (0 is the largest).
+    index
+        Its condition index.
+    proportions
+        ``proportions[j]``: the share of column *j*'s coefficient variance due to this
+        component, in the order of ``names``.
+    """
+
+    component: int = 0
+    index: float = math.nan
+    proportions: Sequence[float | None] = ()
+
+
 class Conditioning(_Result, frozen=True):
     """Conditioning of a design: eigenvalues, condition indices, proportions, tangled sets.
 
@@ -169,6 +188,11 @@ class Conditioning(_Result, frozen=True):
         Eigenvalues at or below ``null_rtol`` times the largest were treated as null.
     null_dim
         How many eigenvalues are null (exact dependencies, reported separately).
+    high_index_rows
+        The rows of ``proportions`` whose condition index is above ``index_threshold``, largest
+        index first: the part of the table that says which columns a near dependency ties
+        together. Always given; with ``detail`` ``"summary"`` the whole ``proportions`` table
+        is left out (empty) and these rows stand for it.
     """
 
     basis: str = ""
@@ -182,6 +206,7 @@ class Conditioning(_Result, frozen=True):
     proportion_threshold: float = math.nan
     null_rtol: float = math.nan
     null_dim: int = 0
+    high_index_rows: Sequence[ProportionRow] = ()
 
 
 class FarrarGlauber(_Result, frozen=True):
@@ -229,6 +254,29 @@ class VariableF(_Result, frozen=True):
     p_value: float | None = None
 
 
+class PartialPair(_Result, frozen=True):
+    """One of the strongest partial correlations between two predictors.
+
+    Attributes
+    ----------
+    first, second
+        The two predictors, in predictor order.
+    correlation
+        Their correlation given all the other predictors.
+    t
+        Its t statistic on ``partial_df`` degrees of freedom; None when the correlation is
+        :math:`\\pm 1`.
+    p_value
+        Two-sided t probability of ``t``; None when ``t`` is None.
+    """
+
+    first: str
+    second: str = ""
+    correlation: float = math.nan
+    t: float | None = None
+    p_value: float | None = None
+
+
 class Tests(_Result, frozen=True):
     """Determinant of R, Farrar-Glauber tests and partial correlations, with caveats.
 
@@ -258,6 +306,10 @@ class Tests(_Result, frozen=True):
         dependencies (each one removes a dimension from the conditioning set).
     notes
         Caveats on reading the tests, and what was left undefined and why.
+    strongest_partials
+        The five largest partial correlations in absolute value (fewer when there are fewer
+        pairs), strongest first. Always given; with ``detail`` ``"summary"`` the three p x p partial
+        tables are left out (empty) and these pairs stand for them.
     """
 
     __test__ = False  # not a pytest test class, despite its name
@@ -271,6 +323,7 @@ class Tests(_Result, frozen=True):
     notes: Sequence[str] = ()
     partial_p_values: Sequence[Sequence[float | None]] = ()
     partial_df: float = math.nan
+    strongest_partials: Sequence[PartialPair] = ()
 
 
 class Dependency(_Result, frozen=True):
@@ -792,6 +845,14 @@ class Assessment(_Result, frozen=True):
     cautions
         How to read these numbers: thresholds are rules of thumb; regulated models follow
         local rules and qualified review.
+    detail
+        How much the answer carries: ``"full"``, or ``"summary"`` (the default option), which
+        keeps everything per variable and term and O(p) of every section, leaving out (empty
+        or null) the p x p tables of proportions and partial correlations, each removal step's
+        VIF vector and the second ordering, the ridge trace's per-variable vectors (the trace
+        keeps max VIF, effective df and R^2 at eight k, the first and the last included) and
+        the choices' original-unit coefficients, and the components' loadings, variable
+        correlations, variances, original-unit and OLS coefficients and R^2 by component.
     """
 
     input_kind: str = ""
@@ -812,6 +873,7 @@ class Assessment(_Result, frozen=True):
     repair: RepairReport | None = None
     warnings: Sequence[Notice] = ()
     cautions: Sequence[str] = ()
+    detail: str = "full"
 
 
 #: Every record an answer can contain, the answer itself last.
@@ -820,9 +882,11 @@ RESULT_TYPES: tuple[type[msgspec.Struct], ...] = (
     VariableInflation,
     TermInflation,
     Tangle,
+    ProportionRow,
     Conditioning,
     FarrarGlauber,
     VariableF,
+    PartialPair,
     Tests,
     Dependency,
     RemovalStep,

@@ -85,6 +85,7 @@ def test_assess_takes_json_arrow_and_parquet(document: dict[str, Any]) -> None:
         "ridge_grid",
         "components_rule",
         "components_limit",
+        "detail",
     }
 
 

@@ -88,6 +88,8 @@ def test_summary_only_sends_no_rows(stand_in, models, tmp_path):
         "loaves",
         "--threshold",
         "100",
+        "--detail",
+        "full",
         "--out",
         str(out),
     )
@@ -95,7 +97,7 @@ def test_summary_only_sends_no_rows(stand_in, models, tmp_path):
     (request,) = stand_in.requests
     body = msgspec.json.decode(request.content)
     assert body["input"]["kind"] == "moments"
-    assert body["options"] == {"threshold": 100.0}
+    assert body["options"] == {"threshold": 100.0, "detail": "full"}
     report = json.loads((out / "tangled.json").read_text())
     assert report["sent"] == "moments" and report["threshold"] == 100.0
 

@@ -36,6 +36,8 @@ from typing import Any, TextIO
 import httpx
 from tqdm import tqdm
 
+from knotwork_contract import DETAILS
+
 from ._client import Client
 from ._config import Retry
 from ._encode import OPTION_NAMES, normalize_options
@@ -141,6 +143,11 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--protect", type=_names, help="comma-separated columns never dropped")
     p.add_argument("--no-intercept", action="store_true", help="regression through the origin")
     p.add_argument("--repair", choices=("reject", "nearest"))
+    p.add_argument(
+        "--detail",
+        choices=DETAILS,
+        help="summary (the service's default: O(p) of every section) or full (every table)",
+    )
     p.add_argument("--sections", type=_names, help="comma-separated result sections")
     p.add_argument("--parallel", type=int, default=4, help="requests in flight (default 4)")
     p.add_argument("--timeout", type=float, default=60.0, help="seconds per request")
@@ -166,6 +173,7 @@ def _cli_defaults(args: argparse.Namespace) -> dict[str, Any]:
         "protect": args.protect,
         "intercept": False if args.no_intercept else None,
         "repair": args.repair,
+        "detail": args.detail,
         "sections": args.sections,
     }
     return {k: v for k, v in given.items() if v is not None}

@@ -115,7 +115,8 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
         """The ridge trace as a DataFrame indexed by k; empty when ridge was not computed.
 
         Columns ``max_vif`` and ``effective_df``, then ``vif[<name>]`` per variable and, with a
-        response, ``coef[<name>]``.
+        response, ``coef[<name>]``; an answer of ``detail`` ``"summary"`` carries the first
+        two only, at eight k of the grid.
         """
         pd = _pandas()
         trace = self.ridge.trace if self.ridge is not None else ()

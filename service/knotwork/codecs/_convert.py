@@ -13,6 +13,7 @@ from knotwork.core import (
     from_moments,
     from_table,
     merge_moments,
+    summary_detail,
 )
 from knotwork_contract import Assessment, AssessOptions, Problem
 
@@ -79,7 +80,7 @@ def summarize(prepared: Prepared) -> Summary:
 
 
 def run(prepared: Prepared) -> Assessment:
-    """Summarize and assess: the whole computation for one request.
+    """Summarize and assess: the whole computation for one request, at the detail it asks.
 
     Raises
     ------
@@ -88,8 +89,9 @@ def run(prepared: Prepared) -> Assessment:
         pointers translated into the request the client sent (``prepared.origin``).
     """
     try:
-        return assess(summarize(prepared), core_options(prepared.options))
+        result = assess(summarize(prepared), core_options(prepared.options))
     except KnotworkError as exc:
         where = prepared.origin
         problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]
         raise UnusableInput(exc.message, problems, kind=exc.kind) from None
+    return result if prepared.options.detail == "full" else summary_detail(result)

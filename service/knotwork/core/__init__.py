@@ -12,6 +12,7 @@ from ._assess import Options, assess, check_options
 from ._components import principal_components
 from ._conditioning import condition_diagnostics
 from ._dependencies import DependencyReport, Spectrum, find_dependencies
+from ._detail import summary_detail
 from ._errors import (
     InputError,
     KnotworkError,
@@ -82,5 +83,6 @@ __all__ = [
     "removal_sequence",
     "ridge_analysis",
     "stop_when",
+    "summary_detail",
     "variance_inflation",
 ]

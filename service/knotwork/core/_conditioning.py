@@ -7,7 +7,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from knotwork.core._dependencies import NULL_RTOL, Spectrum
-from knotwork_contract import Conditioning, Tangle
+from knotwork_contract import Conditioning, ProportionRow, Tangle
 
 #: The bases a cross-product matrix can be given in; ``Conditioning.basis`` echoes one of them.
 BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation")
@@ -156,6 +156,12 @@ def condition_diagnostics(
                 )
             )
     tangles.sort(key=lambda t: -t.index)
+    # Indices grow with k, so the high ones are the last rows; largest index first.
+    high_rows = tuple(
+        ProportionRow(component=k, index=eta, proportions=proportions[k])
+        for k, eta in reversed(list(enumerate(indices)))
+        if eta is not None and eta > index_threshold
+    )
 
     return Conditioning(
         basis=basis,
@@ -169,4 +175,5 @@ def condition_diagnostics(
         proportion_threshold=float(proportion_threshold),
         null_rtol=float(null_rtol),
         null_dim=null_dim,
+        high_index_rows=high_rows,
     )

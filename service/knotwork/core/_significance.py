@@ -10,7 +10,7 @@ import scipy.linalg
 import scipy.special
 
 from knotwork.core._dependencies import Spectrum, find_dependencies
-from knotwork_contract import FarrarGlauber, Tests, VariableF
+from knotwork_contract import FarrarGlauber, PartialPair, Tests, VariableF
 
 #: The caveats that go with every result, in the order they are reported.
 CAVEATS = (
@@ -242,6 +242,7 @@ def collinearity_tests(
     corr_rows = _rows_with_none(partial)
     t_rows = _rows_with_none(t_stat)
     p_rows = _rows_with_none(p_val)
+    strongest = _strongest_pairs(partial, t_stat, p_val, names)
 
     return Tests(
         determinant=float(determinant),
@@ -253,4 +254,40 @@ def collinearity_tests(
         notes=tuple(notes),
         partial_p_values=tuple(p_rows),
         partial_df=_whole(partial_df),
+        strongest_partials=strongest,
+    )
+
+
+#: How many of the strongest partial correlations every answer carries.
+STRONGEST_PAIRS = 5
+
+
+def _strongest_pairs(
+    partial: np.ndarray, t_stat: np.ndarray, p_val: np.ndarray, names: Sequence[str]
+) -> tuple[PartialPair, ...]:
+    """The largest partial correlations in absolute value, at most STRONGEST_PAIRS pairs.
+
+    Ties keep the order of the predictors (a stable sort on the upper triangle), so the same
+    input gives the same pairs.
+    """
+    p = partial.shape[0]
+    rows, cols = np.triu_indices(p, 1)
+    strength = np.abs(partial[rows, cols])
+    defined = ~np.isnan(strength)
+    rows, cols, strength = rows[defined], cols[defined], strength[defined]
+    order = np.argsort(-strength, kind="stable")[:STRONGEST_PAIRS]
+
+    def value(a: np.ndarray, i: int, j: int) -> float | None:
+        v = float(a[i, j])
+        return None if math.isnan(v) else v
+
+    return tuple(
+        PartialPair(
+            first=names[i],
+            second=names[j],
+            correlation=float(partial[i, j]),
+            t=value(t_stat, i, j),
+            p_value=value(p_val, i, j),
+        )
+        for i, j in zip(rows[order].tolist(), cols[order].tolist(), strict=True)
     )
