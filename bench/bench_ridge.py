@@ -26,6 +26,7 @@ from _timing import best
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._dependencies import Spectrum
+from knotwork.core._regression import Regression
 from knotwork.core._ridge import default_grid, ridge_analysis
 
 THRESHOLD = 10.0
@@ -75,7 +76,11 @@ def main() -> None:
             t_eig = best(lambda r=r: Spectrum.of(r), repeat)
             t_trace = best(
                 lambda r=r, r_xy=r_xy, n=n, names=names, spectrum=spectrum: ridge_analysis(
-                    r, names, n=n, threshold=THRESHOLD, r_xy=r_xy, spectrum=spectrum
+                    r,
+                    names,
+                    regression=Regression(n, r_xy=r_xy),
+                    threshold=THRESHOLD,
+                    spectrum=spectrum,
                 ),
                 repeat,
             )

@@ -12,7 +12,7 @@ from sklearn.datasets import load_diabetes
 from sklearn.decomposition import PCA
 from sklearn.linear_model import LinearRegression
 
-from knotwork.core import Options, assess, from_frame
+from knotwork.core import Options, Regression, assess, from_frame
 from knotwork.core._components import LIMIT_WITH_VIF_THRESHOLD, principal_components
 from knotwork.core._errors import OptionError
 from knotwork.demo import garden_centres
@@ -49,7 +49,9 @@ def _pcr_vifs_by_size(x: np.ndarray) -> list[np.ndarray]:
 def test_longley_eigenvalues_and_condition_index_rule(longley):
     x, y, names = longley
     r, r_xy = summary(x, y)
-    result = principal_components(r, names, n=len(y), rule="condition_index", r_xy=r_xy)
+    result = principal_components(
+        r, names, regression=Regression(len(y), r_xy=r_xy), rule="condition_index"
+    )
     # docs/numerics.md check values: eigenvalues of Longley's R.
     assert_allclose(
         result.eigenvalues,
@@ -67,13 +69,13 @@ def test_longley_eigenvalues_and_condition_index_rule(longley):
 def test_default_rule_is_the_vif_threshold(longley):
     x, y, names = longley
     r, r_xy = summary(x, y)
-    result = principal_components(r, names, n=len(y), r_xy=r_xy)
+    result = principal_components(r, names, regression=Regression(len(y), r_xy=r_xy))
     assert result.rule == "vif_threshold" and result.limit == 5.0  # 5: common practice
     assert "at or below the threshold 5" in result.rule_text
     # Longley's PCR VIFs for 3 and 4 leading components: 2.93 and 42.3 (scikit-learn PCA
     # below), so threshold 5 keeps 3 and threshold 50 keeps 4.
     assert result.kept == (0, 1, 2) and result.max_vif <= 5.0
-    wider = principal_components(r, names, n=len(y), threshold=50.0)
+    wider = principal_components(r, names, threshold=50.0)
     assert wider.kept == (0, 1, 2, 3) and wider.limit == 50.0
 
 
@@ -83,7 +85,7 @@ def test_pcr_vifs_and_kept_set_equal_scikit_learn_pca(dataset, threshold):
     x, y = _dataset(dataset)
     p = x.shape[1]
     r, _ = summary(x, y)
-    result = principal_components(r, [f"x{j}" for j in range(p)], n=len(y), threshold=threshold)
+    result = principal_components(r, [f"x{j}" for j in range(p)], threshold=threshold)
     by_size = _pcr_vifs_by_size(x)
     # The largest leading set whose every PCR VIF is at or below the threshold (common
     # practice: 5 or 10), found from scikit-learn's PCA: the nearest size to the threshold is at
@@ -113,15 +115,17 @@ def test_keeping_every_component_is_the_nist_ols_fit(longley, rule, limit, thres
     result = principal_components(
         r,
         names,
-        n=len(y),
+        regression=Regression(
+            len(y),
+            r_xy=r_xy,
+            sds=x.std(axis=0, ddof=1),
+            response_sd=float(y.std(ddof=1)),
+            means=x.mean(axis=0),
+            response_mean=float(y.mean()),
+        ),
         rule=rule,
         limit=limit,
         threshold=threshold,
-        r_xy=r_xy,
-        sds=x.std(axis=0, ddof=1),
-        response_sd=float(y.std(ddof=1)),
-        means=x.mean(axis=0),
-        response_mean=float(y.mean()),
     )
     assert result.kept == tuple(range(6))
     assert_allclose(result.original_coefficients, NIST_B[1:], rtol=1e-7)  # NIST StRD certified
@@ -149,7 +153,7 @@ def test_regression_on_kept_components_equals_scikit_learn(dataset, rule, limit,
     n, p = x.shape
     r, r_xy = summary(x, y)
     result = principal_components(
-        r, [f"x{j}" for j in range(p)], n=n, rule=rule, limit=limit, r_xy=r_xy
+        r, [f"x{j}" for j in range(p)], regression=Regression(n, r_xy=r_xy), rule=rule, limit=limit
     )
     kept = len(result.kept)
     assert result.kept == tuple(range(kept))
@@ -166,7 +170,7 @@ def test_regression_on_kept_components_equals_scikit_learn(dataset, rule, limit,
 def test_cumulative_rule_and_shares(longley):
     x, y, names = longley
     r, _ = summary(x, y)
-    result = principal_components(r, names, n=len(y), rule="cumulative", limit=0.95)
+    result = principal_components(r, names, rule="cumulative", limit=0.95)
     cum = np.cumsum(np.linalg.eigvalsh(r)[::-1]) / 6
     assert len(result.kept) == int(np.argmax(cum >= 0.95)) + 1
     assert result.coefficients is None and result.variance_basis is None
@@ -175,7 +179,7 @@ def test_cumulative_rule_and_shares(longley):
 def test_loadings_are_signed_orthonormal_and_correlate_with_scores(rng):
     x = rng.standard_normal((200, 3)) @ rng.standard_normal((3, 5)) + rng.standard_normal((200, 5))
     r = np.corrcoef(x, rowvar=False)
-    result = principal_components(r, list("abcde"), n=200)
+    result = principal_components(r, list("abcde"))
     v = np.array(result.loadings).T
     assert_allclose(v.T @ v, np.eye(5), atol=1e-12)
     for k in range(5):
@@ -192,7 +196,7 @@ def test_low_variance_component_that_matters_is_flagged(rng):
     x = np.column_stack([base + 0.01 * rng.standard_normal(n), base, rng.standard_normal(n)])
     y = (x[:, 0] - x[:, 1]) * 100 + 0.1 * rng.standard_normal(n)
     r, r_xy = summary(x, y)
-    result = principal_components(r, list("abc"), n=n, r_xy=r_xy)
+    result = principal_components(r, list("abc"), regression=Regression(n, r_xy=r_xy))
     assert 2 not in result.kept
     assert result.r_squared_by_component[2] > 0.9
     assert any("Jolliffe 1982" in note and "Dropped components 2" in note for note in result.notes)
@@ -205,7 +209,7 @@ def test_exact_dependency_uses_kept_component_variance(rng):
     x = np.column_stack([x, x[:, 0] + x[:, 1]])
     y = x[:, 0] + rng.standard_normal(n)
     r, r_xy = summary(x, y)
-    result = principal_components(r, list("abcd"), n=n, r_xy=r_xy)
+    result = principal_components(r, list("abcd"), regression=Regression(n, r_xy=r_xy))
     assert result.condition_indices[-1] is None and 3 not in result.kept
     assert result.variance_basis == "kept_components" and result.ols_coefficients is None
     fit = sm.OLS(y, sm.add_constant(x[:, :3])).fit()
@@ -223,7 +227,7 @@ def test_exact_dependency_uses_kept_component_variance(rng):
 )
 def test_bad_rule_or_limit(rule, limit, pointer):
     with pytest.raises(OptionError) as err:
-        principal_components(np.eye(2), ["a", "b"], n=10, rule=rule, limit=limit)
+        principal_components(np.eye(2), ["a", "b"], rule=rule, limit=limit)
     assert err.value.problems[0].pointer == pointer
 
 
@@ -231,7 +235,7 @@ def test_vif_threshold_refuses_a_limit_of_its_own():
     # The rule's limit is the threshold: a second number would let the components aim at a
     # different goal from removal and ridge in the comparison, so it is refused, not merged.
     with pytest.raises(OptionError) as err:
-        principal_components(np.eye(2), ["a", "b"], n=10, limit=10.0)
+        principal_components(np.eye(2), ["a", "b"], limit=10.0)
     assert err.value.problems[0].reason == (
         "the vif_threshold rule takes its limit from threshold; set threshold instead of "
         "components.limit, or choose rule condition_index or cumulative"
@@ -243,7 +247,7 @@ def test_vif_threshold_refuses_a_limit_of_its_own():
 
 def test_edge_cases_of_the_vif_threshold_rule(rng):
     # Orthogonal predictors: every OLS VIF is 1, so every component is kept and the fit is OLS.
-    result = principal_components(np.eye(3), list("abc"), n=20, threshold=1.0)
+    result = principal_components(np.eye(3), list("abc"), threshold=1.0)
     assert result.kept == (0, 1, 2)
     assert_allclose(result.vif, 1.0, rtol=1e-12)
     assert any("ordinary least squares" in note for note in result.notes)
@@ -251,7 +255,7 @@ def test_edge_cases_of_the_vif_threshold_rule(rng):
     # the smallest threshold, 1, a strongly tangled design still keeps its first component.
     x = rng.standard_normal((100, 1)) + 1e-3 * rng.standard_normal((100, 4))
     r = np.corrcoef(x, rowvar=False)
-    tight = principal_components(r, list("abcd"), n=100, threshold=1.0)
+    tight = principal_components(r, list("abcd"), threshold=1.0)
     assert tight.kept == (0,) and tight.max_vif <= 1.0
     lam, vec = np.linalg.eigh(r)  # numpy, ascending: the first component is the last column
     # Two decompositions of the same well-separated leading eigenpair: 1e-9 is ample.
@@ -259,7 +263,7 @@ def test_edge_cases_of_the_vif_threshold_rule(rng):
     # An exact dependency: its zero-eigenvalue component is never kept, whatever the threshold.
     z = rng.standard_normal((50, 3))
     z = np.column_stack([z, z[:, 0] + z[:, 1]])
-    dep = principal_components(np.corrcoef(z, rowvar=False), list("abcd"), n=50, threshold=1e12)
+    dep = principal_components(np.corrcoef(z, rowvar=False), list("abcd"), threshold=1e12)
     assert dep.kept == (0, 1, 2)
     assert any("exact dependencies are never kept" in note for note in dep.notes)
 

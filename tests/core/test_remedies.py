@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
+from knotwork.core import Regression
 from knotwork.core._components import principal_components
 from knotwork.core._remedies import MEANINGS, compare_remedies
 from knotwork.core._removal import removal_sequence
@@ -23,8 +24,9 @@ def longley():
 
 def remedies(r, names, n, r_xy, threshold=10.0):
     removal = removal_sequence(r, names, threshold=threshold, r_xy=r_xy)
-    ridge = ridge_analysis(r, names, n=n, threshold=threshold, r_xy=r_xy)
-    comps = principal_components(r, names, n=n, r_xy=r_xy)
+    regression = Regression(n, r_xy=r_xy)
+    ridge = ridge_analysis(r, names, regression=regression, threshold=threshold)
+    comps = principal_components(r, names, regression=regression)
     return removal, ridge, comps
 
 
@@ -33,7 +35,13 @@ def test_longley_rows_against_statsmodels(longley):
     n = len(y)
     removal, ridge, comps = remedies(r, names, n, r_xy)
     result = compare_remedies(
-        r, names, n=n, threshold=10, removal=removal, ridge=ridge, components=comps, r_xy=r_xy
+        r,
+        names,
+        regression=Regression(n, r_xy=r_xy),
+        threshold=10,
+        removal=removal,
+        ridge=ridge,
+        components=comps,
     )
     rows = {row.remedy: row for row in result.rows}
     assert [row.remedy for row in result.rows] == ["none", "removal", "ridge", "components"]
@@ -71,12 +79,24 @@ def test_without_response_or_remedies(longley):
     _, y, names, r, _ = longley
     removal, ridge, comps = remedies(r, names, len(y), None)
     result = compare_remedies(
-        r, names, n=len(y), threshold=10, removal=removal, ridge=ridge, components=comps
+        r,
+        names,
+        regression=Regression(len(y)),
+        threshold=10,
+        removal=removal,
+        ridge=ridge,
+        components=comps,
     )
     assert all(row.r_squared is None and row.r_squared_lost is None for row in result.rows)
     assert result.rows[2].remedy == "ridge"  # the VIF-threshold k needs no response
     bare = compare_remedies(
-        r, names, n=len(y), threshold=10, removal=None, ridge=None, components=None
+        r,
+        names,
+        regression=Regression(len(y)),
+        threshold=10,
+        removal=None,
+        ridge=None,
+        components=None,
     )
     assert [row.remedy for row in bare.rows] == ["none"]
     assert bare.ridge_rule is None and bare.ridge_k is None
@@ -92,7 +112,13 @@ def test_exact_dependency_full_row(rng):
     names = list("abcd")
     removal, ridge, comps = remedies(r, names, n, r_xy, threshold=5)
     result = compare_remedies(
-        r, names, n=n, threshold=5, removal=removal, ridge=ridge, components=comps, r_xy=r_xy
+        r,
+        names,
+        regression=Regression(n, r_xy=r_xy),
+        threshold=5,
+        removal=removal,
+        ridge=ridge,
+        components=comps,
     )
     rows = {row.remedy: row for row in result.rows}
     assert rows["none"].max_vif is None and rows["none"].parameters == 3

@@ -10,6 +10,7 @@ from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from sklearn.linear_model import Ridge as SkRidge
 
+from knotwork.core import Regression
 from knotwork.core._errors import OptionError
 from knotwork.core._ridge import (
     GCV,
@@ -36,7 +37,9 @@ def choices(result):
 def test_longley_published_choices_and_ridge_vifs(longley):
     x, y, names = longley
     r, r_xy = summary(x, y)
-    result = ridge_analysis(r, names, n=len(y), threshold=10, r_xy=r_xy, grid=[0.01])
+    result = ridge_analysis(
+        r, names, regression=Regression(len(y), r_xy=r_xy), threshold=10, grid=[0.01]
+    )
     ch = choices(result)
     # docs/numerics.md check values (correlation scale): k_HKB 0.000400815, k_LW 0.00302769.
     assert ch[HKB].k == pytest.approx(0.000400815, rel=5e-6)
@@ -59,7 +62,9 @@ def test_coefficients_equal_scikit_learn_ridge_on_standardized_data(dataset, lon
     n, p = x.shape
     r, r_xy = summary(x, y)
     ks = [0.0, 1e-4, 0.003, 0.05, 0.7]
-    result = ridge_analysis(r, [f"x{j}" for j in range(p)], n=n, threshold=5, r_xy=r_xy, grid=ks)
+    result = ridge_analysis(
+        r, [f"x{j}" for j in range(p)], regression=Regression(n, r_xy=r_xy), threshold=5, grid=ks
+    )
     z, zy = standardize(x), standardize(y)
     for point in result.trace:
         # With unit-variance columns Z'Z = (n - 1) R and Z'y = (n - 1) r_xy, so scikit-learn's
@@ -76,14 +81,16 @@ def test_original_scale_at_k_zero_is_the_nist_fit(longley):
     result = ridge_analysis(
         r,
         names,
-        n=len(y),
+        regression=Regression(
+            len(y),
+            r_xy=r_xy,
+            sds=x.std(axis=0, ddof=1),
+            response_sd=float(y.std(ddof=1)),
+            means=x.mean(axis=0),
+            response_mean=float(y.mean()),
+        ),
         threshold=10,
-        r_xy=r_xy,
         grid=[0.0],
-        sds=x.std(axis=0, ddof=1),
-        response_sd=float(y.std(ddof=1)),
-        means=x.mean(axis=0),
-        response_mean=float(y.mean()),
     )
     point = result.trace[0]
     assert_allclose(point.original_coefficients, NIST_B[1:], rtol=1e-7)  # NIST StRD certified
@@ -101,7 +108,9 @@ def test_trace_matches_direct_matrix_formulas(rng):
     )
     y = x @ rng.standard_normal(p) + rng.standard_normal(n)
     r, r_xy = summary(x, y)
-    result = ridge_analysis(r, [f"x{j}" for j in range(p)], n=n, threshold=5, r_xy=r_xy)
+    result = ridge_analysis(
+        r, [f"x{j}" for j in range(p)], regression=Regression(n, r_xy=r_xy), threshold=5
+    )
     assert len(result.trace) == 100 and result.trace[0].k == 0.0
     for point in result.trace[::7]:
         inv = np.linalg.inv(r + point.k * np.eye(p))
@@ -124,7 +133,9 @@ def test_gcv_minimizes_the_row_formula(rng):
     )
     y = x[:, 0] - x[:, 3] + 2.0 * rng.standard_normal(n)
     r, r_xy = summary(x, y)
-    result = ridge_analysis(r, [f"x{j}" for j in range(p)], n=n, threshold=5, r_xy=r_xy)
+    result = ridge_analysis(
+        r, [f"x{j}" for j in range(p)], regression=Regression(n, r_xy=r_xy), threshold=5
+    )
     k_gcv = choices(result)[GCV].k
     z, zy = standardize(x), standardize(y)
 
@@ -151,7 +162,9 @@ def test_vif_threshold_choice_is_the_smallest_k(longley):
         return float(np.diag(inv @ r @ inv).max())
 
     for threshold in (2.0, 5.0, 10.0, 100.0):
-        result = ridge_analysis(r, names, n=len(y), threshold=threshold, r_xy=r_xy, grid=[0])
+        result = ridge_analysis(
+            r, names, regression=Regression(len(y), r_xy=r_xy), threshold=threshold, grid=[0]
+        )
         k = choices(result)[VIF_THRESHOLD].k
         # The reference inverts R + kI explicitly (another route than the core's eigen form),
         # with a rounding of about eps * cond(R + kI) <= 2.2e-16 * 2300 = 5e-13 relative. The
@@ -166,7 +179,7 @@ def test_vif_threshold_choice_is_the_smallest_k(longley):
 def test_vif_threshold_is_zero_when_already_under(rng):
     x = rng.standard_normal((100, 4))
     r = np.corrcoef(x, rowvar=False)
-    result = ridge_analysis(r, list("abcd"), n=100, threshold=5)
+    result = ridge_analysis(r, list("abcd"), regression=Regression(100), threshold=5)
     ch = choices(result)
     assert ch[VIF_THRESHOLD].k == 0.0 and "already" in ch[VIF_THRESHOLD].note
     assert ch[HKB].k is None and "response" in ch[HKB].note
@@ -190,7 +203,9 @@ def test_exact_dependency(rng):
     x[:, 3] = x[:, 0] - 2 * x[:, 1]
     y = x[:, 0] + x[:, 2] + rng.standard_normal(n)
     r, r_xy = summary(x, y)
-    result = ridge_analysis(r, list("abcd"), n=n, threshold=5, r_xy=r_xy, grid=[0.0, 0.01, 0.2])
+    result = ridge_analysis(
+        r, list("abcd"), regression=Regression(n, r_xy=r_xy), threshold=5, grid=[0.0, 0.01, 0.2]
+    )
     at0 = result.trace[0]
     assert at0.vif[0] is None and at0.vif[1] is None and at0.vif[3] is None
     assert at0.vif[2] == pytest.approx(np.linalg.inv(r[:3, :3])[2, 2], rel=1e-8)
@@ -212,7 +227,11 @@ def test_no_intercept_uses_the_cosine_scale(rng):
     cosine = x.T @ x / np.outer(norms, norms)
     r_xy = x.T @ y / (norms * np.linalg.norm(y))
     result = ridge_analysis(
-        cosine, list("abc"), n=n, threshold=5, r_xy=r_xy, grid=[0.0, 0.02], intercept=False
+        cosine,
+        list("abc"),
+        regression=Regression(n, intercept=False, r_xy=r_xy),
+        threshold=5,
+        grid=[0.0, 0.02],
     )
     assert result.unit_variance_factor == n and result.residual_df == n - p
     rms, rms_y = norms / np.sqrt(n), np.linalg.norm(y) / np.sqrt(n)
@@ -229,5 +248,5 @@ def test_no_intercept_uses_the_cosine_scale(rng):
 )
 def test_bad_grid_names_the_value(grid, pointer):
     with pytest.raises(OptionError) as err:
-        ridge_analysis(np.eye(2), ["a", "b"], n=10, threshold=5, grid=grid)
+        ridge_analysis(np.eye(2), ["a", "b"], regression=Regression(10), threshold=5, grid=grid)
     assert err.value.problems[0].pointer == pointer

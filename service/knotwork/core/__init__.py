@@ -25,6 +25,7 @@ from ._errors import (
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
 from ._notices import CAUTIONS, CODES
+from ._regression import Regression
 from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._repair import Repair, nearest_correlation
@@ -59,6 +60,7 @@ __all__ = [
     "OptionError",
     "Options",
     "Problem",
+    "Regression",
     "Repair",
     "Spectrum",
     "Summary",

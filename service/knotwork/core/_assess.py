@@ -5,7 +5,6 @@ from __future__ import annotations
 import math
 from collections.abc import Collection
 from dataclasses import dataclass
-from typing import TypedDict
 
 import numpy as np
 
@@ -25,6 +24,7 @@ from ._errors import OptionError, Problem
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
 from ._notices import CAUTIONS, notice
+from ._regression import Regression
 from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._ridge import ridge_analysis
@@ -34,19 +34,6 @@ from ._summary import Summary
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
 _LARGE_N = 10_000
-
-
-class _FitArgs(TypedDict):
-    """Keyword arguments shared by the remedies that fit the response."""
-
-    n: float
-    r_xy: np.ndarray | None
-    sds: np.ndarray | None
-    response_sd: float | None
-    means: np.ndarray | None
-    response_mean: float | None
-    intercept: bool
-    spectrum: Spectrum
 
 
 @dataclass(frozen=True, slots=True)
@@ -272,44 +259,47 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             r_xy=r_xy,
         )
     checkpoint()
-    # What both remedies need to state coefficients in original units (centred models only).
+    # The remedies' regression; coefficients in original units for centred models only.
     centred = options.intercept
-    fit: _FitArgs = {
-        "n": summary.n,
-        "r_xy": r_xy,
-        "sds": summary.sds if centred else None,
-        "response_sd": summary.response_sd if centred else None,
-        "means": summary.predictor_means if centred else None,
-        "response_mean": summary.response_mean if centred else None,
-        "intercept": options.intercept,
-        "spectrum": spectrum,
-    }
+    regression = Regression(
+        n=summary.n,
+        intercept=options.intercept,
+        r_xy=r_xy,
+        sds=summary.sds if centred else None,
+        response_sd=summary.response_sd if centred else None,
+        means=summary.predictor_means if centred else None,
+        response_mean=summary.response_mean if centred else None,
+    )
     if options.wants("ridge") or wants_comparison:
         ridge = ridge_analysis(
-            matrix, names, threshold=options.threshold, grid=options.ridge_grid, **fit
+            matrix,
+            names,
+            regression=regression,
+            threshold=options.threshold,
+            grid=options.ridge_grid,
+            spectrum=spectrum,
         )
     checkpoint()
     if options.wants("components") or wants_comparison:
         components = principal_components(
             matrix,
             names,
+            regression=regression,
             rule=options.components_rule,
             limit=options.components_limit,
             threshold=options.threshold,
-            **fit,
+            spectrum=spectrum,
         )
     checkpoint()
     if wants_comparison:
         comparison = compare_remedies(
             matrix,
             names,
-            n=summary.n,
+            regression=regression,
             threshold=options.threshold,
             removal=removal,
             ridge=ridge,
             components=components,
-            r_xy=r_xy,
-            intercept=options.intercept,
             spectrum=spectrum,
         )
     return Assessment(

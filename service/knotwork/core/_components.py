@@ -11,6 +11,7 @@ from knotwork_contract import Components
 
 from ._dependencies import Spectrum
 from ._errors import InputError, OptionError
+from ._regression import Regression
 
 VIF_THRESHOLD = "vif_threshold"
 CONDITION_INDEX = "condition_index"
@@ -85,16 +86,10 @@ def principal_components(
     M: np.ndarray,
     names: Sequence[str],
     *,
-    n: float,
+    regression: Regression | None = None,
     rule: str = VIF_THRESHOLD,
     limit: float | None = None,
     threshold: float = DEFAULT_THRESHOLD,
-    r_xy: np.ndarray | None = None,
-    sds: np.ndarray | None = None,
-    response_sd: float | None = None,
-    means: np.ndarray | None = None,
-    response_mean: float | None = None,
-    intercept: bool = True,
     spectrum: Spectrum | None = None,
 ) -> Components:
     """Principal components, a rule for which to keep, and the regression on the kept ones.
@@ -105,8 +100,12 @@ def principal_components(
         The predictors' correlation matrix (p, p), or their cosine matrix without intercept.
     names
         Predictor names in matrix order.
-    n
-        Number of observations (or sum of weights).
+    regression
+        The regression on the kept components: the sample size, whether the model has an
+        intercept (residual df n - p - 1, else n - p), the response's correlations with the
+        predictors, and the scales and means for coefficients, variances and the intercept in
+        original units. None (or one without the response's correlations): the components
+        alone, without a regression.
     rule
         ``"vif_threshold"`` (default: keep the most leading components whose regression has
         every VIF at or below ``threshold``), ``"condition_index"`` (drop components whose
@@ -119,12 +118,6 @@ def principal_components(
     threshold
         The VIF threshold of the ``"vif_threshold"`` rule (a rule of thumb: 5 or 10; default 5,
         as the assessment's); ignored by the other rules.
-    r_xy
-        Correlations of the predictors with the response, for principal-component regression.
-    sds, response_sd, means, response_mean
-        For coefficients and variances in original units and the intercept.
-    intercept
-        Whether the model has an intercept (residual df n - p - 1, else n - p).
     spectrum
         The eigen-decomposition of ``M`` when already computed.
 
@@ -232,8 +225,8 @@ def principal_components(
 
     coef = var = ocoef = ovar = icpt = r2 = r2_full = by_comp = ols = resvar = None
     basis: str | None = None
-    if r_xy is not None:
-        r = np.asarray(r_xy, dtype=float)
+    if regression is not None and regression.r_xy is not None:
+        r = regression.r_xy
         c = vecs.T @ r
         share = np.zeros(p)
         share[:nonnull] = c[:nonnull] ** 2 / lam[:nonnull]
@@ -242,7 +235,7 @@ def principal_components(
         coef = tuple(b.tolist())
         r2 = float(share[kept].sum())
         r2_full = float(share.sum())
-        dof = float(n) - (1.0 if intercept else 0.0)
+        dof = regression.dof
         if spec.null_dim == 0:
             ols = tuple((((vecs / lam) @ vecs.T) @ r).tolist())
         if spec.null_dim == 0 and dof - p > 0:
@@ -253,18 +246,20 @@ def principal_components(
             basis = "kept_components"
         else:
             s2 = math.nan
+        v = None
         if math.isfinite(s2):
             v = s2 * vif
             var = tuple(v.tolist())
             resvar = float(s2 * dof)
-        if sds is not None and response_sd is not None:
-            scale = float(response_sd) / np.asarray(sds, dtype=float)
-            beta = b * scale
+        units = regression.original(b)
+        if units is not None:
+            beta, intercept = units
             ocoef = tuple(beta.tolist())
-            if var is not None:
-                ovar = tuple((np.asarray(var) * scale**2).tolist())
-            if intercept and means is not None and response_mean is not None:
-                icpt = float(response_mean - beta @ np.asarray(means, dtype=float))
+            scaled = None if v is None else regression.original_variances(v)
+            if scaled is not None:
+                ovar = tuple(scaled.tolist())
+            if intercept is not None:
+                icpt = float(intercept)
         dropped = [k for k in range(nonnull) if k not in kept]
         if dropped and kept:
             floor = float(share[kept].min())

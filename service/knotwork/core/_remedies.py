@@ -11,6 +11,7 @@ import scipy.linalg
 from knotwork_contract import Comparison, Components, RemedyRow, Removal, Ridge
 
 from ._dependencies import Spectrum
+from ._regression import Regression
 from ._ridge import GCV, HKB, LAWLESS_WANG, VIF_THRESHOLD, _Eigen
 
 NONE = "none"
@@ -83,13 +84,11 @@ def compare_remedies(
     M: np.ndarray,
     names: Sequence[str],
     *,
-    n: float,
+    regression: Regression,
     threshold: float,
     removal: Removal | None,
     ridge: Ridge | None,
     components: Components | None,
-    r_xy: np.ndarray | None = None,
-    intercept: bool = True,
     spectrum: Spectrum | None = None,
 ) -> Comparison:
     """Parameters left, largest VIF left and fit lost for each remedy, against the full model.
@@ -100,16 +99,13 @@ def compare_remedies(
         The predictors' correlation matrix (or cosine matrix without intercept).
     names
         Predictor names in matrix order.
-    n
-        Number of observations.
+    regression
+        The sample size, whether the model has an intercept, and the response's correlations
+        with the predictors (for the fit columns), as the remedies were computed with.
     threshold
         The VIF threshold (echoed).
     removal, ridge, components
         The remedies as computed for the same matrix; None leaves a row out.
-    r_xy
-        Correlations of the predictors with the response, for the fit columns.
-    intercept
-        Whether the model has an intercept.
     spectrum
         The eigen-decomposition of ``M`` when already computed.
 
@@ -146,10 +142,10 @@ def compare_remedies(
     """
     m = np.asarray(M, dtype=float)
     p = len(names)
-    r = None if r_xy is None else np.asarray(r_xy, dtype=float)
+    r = regression.r_xy
     spec = spectrum if spectrum is not None else Spectrum.of(m)
     eig = _Eigen(m, spec, r)
-    dof = float(n) - (1.0 if intercept else 0.0)
+    dof = regression.dof
     r2_full = None
     if eig.c2 is not None:
         r2_full = float(np.sum(eig.c2[eig.pos] / eig.l[eig.pos]))

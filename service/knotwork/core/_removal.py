@@ -12,12 +12,12 @@ from collections.abc import Collection, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 from msgspec.structs import replace
 
 from knotwork_contract import Removal, RemovalStep, StillHigh
 
 from ._dependencies import NULL_RTOL, DependencyReport, Spectrum, find_dependencies
+from ._downdate import GROWTH_LIMIT, DowndatedInverse, agrees_with_fresh
 from ._errors import InputError, MatrixError, OptionError, Problem
 from ._interrupt import checkpoint
 from ._linalg import inverse_spd, logdet_spd
@@ -26,29 +26,6 @@ from ._linalg import inverse_spd, logdet_spd
 #: in exact arithmetic but different in the last bits are broken by the documented rule and not
 #: by rounding (the downdated and the freshly inverted values agree far closer than this).
 TIE_RTOL = 1e-9
-
-#: Accuracy test of the downdate. Every diagonal entry of the kept inverse is the difference
-#: ``a_jj = a0_jj - sum_k u_kj^2`` of the entry at the last factorization and the downdates
-#: since. Its rounding error is about ``eps * m_j`` with ``m_j = a0_jj + sum_k u_kj^2``, and it
-#: inherits the error of the factorization, about ``eps * max_i a0_ii`` in every entry (the
-#: scale of the largest VIF then). With ``e_j = max(m_j, max_i a0_ii)``, the remaining matrix
-#: is inverted again from M when for some remaining j both ``e_j > GROWTH_LIMIT * a_jj`` (a
-#: relative error that may exceed about 1e-10) and ``e_j > EXCESS_LIMIT * max_i a_ii`` (an error
-#: well above the eps * max_i a_ii that a fresh inverse of the remaining matrix has anyway, so
-#: a protected, ill-conditioned pair that stays does not force re-inversion at every step).
-GROWTH_LIMIT = 1e6
-EXCESS_LIMIT = 1e3
-
-#: After the sequence, the inflations of the kept set are recomputed from a fresh inverse; if
-#: they differ from the downdated ones by more than this (relative), the whole sequence is run
-#: again with a fresh inverse after every drop (the naive method) and a note says so.
-CHECK_RTOL = 1e-7
-
-#: The stored downdates are folded into an explicit inverse of the remaining columns (one
-#: matrix product giving the same numbers, so no change in accuracy) once the remaining
-#: columns are this fraction of those stored: column fetches then touch a smaller matrix.
-#: Tuned with bench/bench_removal.py.
-COMPACT_AT = 0.75
 
 #: Relation weights below this (relative to the largest) count as zero when choosing which
 #: variables of an exact dependency to drop.
@@ -93,153 +70,6 @@ _NOTES = (
     "the part of the dropped predictors' effect it is correlated with.",
     "Decisions on regulated models follow local rules and qualified review.",
 )
-
-
-# --------------------------------------------------------------------------------------------
-# Linear algebra helpers
-
-
-class _Downdated:
-    """The inverse of M over the active columns, kept lazily as ``A0 - Ut' Ut``.
-
-    ``A0`` is the inverse at the last factorization, held in a local index space (the columns
-    active then); every drop of a set T appends the rows ``L^-1 A_{T,:}`` (L the Cholesky factor
-    of ``A_TT``) to ``Ut``, which is the partitioned-inverse downdate
-    ``A <- A - A_{:,T} A_TT^-1 A_{T,:}`` (the sweep operator run backwards). Only the diagonal is
-    kept current; a column is fetched with one matrix-vector product over the stored rows.
-    Dropped entries of the diagonal are set to infinity (and their magnitudes to 0) so that
-    whole-vector operations need no mask.
-    """
-
-    def __init__(
-        self,
-        m: np.ndarray,
-        active: np.ndarray,
-        r: np.ndarray | None,
-        inverse: np.ndarray | None = None,
-    ) -> None:
-        self.m = m
-        self.r = r
-        self.p = m.shape[0]
-        self.refactorizations = 0
-        self._factor(active, inverse)
-
-    def _factor(self, active: np.ndarray, inverse: np.ndarray | None = None) -> None:
-        idx = np.flatnonzero(active)
-        if inverse is None:
-            inverse = inverse_spd(self.m[np.ix_(idx, idx)])
-        mag = np.diag(inverse).copy()
-        self.scale0 = float(mag.max()) if mag.size else 1.0
-        self._reset(idx, np.ascontiguousarray(inverse), mag)
-
-    def _reset(self, idx: np.ndarray, a0: np.ndarray, mag: np.ndarray) -> None:
-        q = idx.shape[0]
-        self.idx = idx
-        self.loc = np.full(self.p, -1, dtype=np.intp)
-        self.loc[idx] = np.arange(q)
-        self.on = np.ones(q, dtype=bool)
-        self.a0 = a0
-        self.ut = np.empty((q, q))
-        self.s = 0
-        self.diag = np.diag(a0).copy()
-        self.mag = mag
-        self.r_loc = self.r[idx] if self.r is not None else None
-        self.b = a0 @ self.r_loc if self.r_loc is not None else None
-
-    @property
-    def stored(self) -> int:
-        """Dimension of the local index space (columns active at the last reset)."""
-        return int(self.idx.shape[0])
-
-    def refactor(self, active: np.ndarray) -> None:
-        self._factor(active)
-        self.refactorizations += 1
-
-    def compact(self) -> None:
-        """Form the current inverse over the active columns and restart the stored rows there.
-
-        The same numbers as the lazy form (so no change in accuracy: the magnitudes are carried
-        over), but later column fetches touch a smaller matrix.
-        """
-        lk = np.flatnonzero(self.on)
-        u = self.ut[: self.s][:, lk]
-        a = self.a0[np.ix_(lk, lk)] - u.T @ u
-        self._reset(self.idx[lk], a, self.mag[lk])
-
-    def vif(self, cols: np.ndarray) -> np.ndarray:
-        return self.diag[self.loc[cols]]
-
-    def columns(self, cols: np.ndarray) -> np.ndarray:
-        """Current columns of the inverse for global ``cols``, shape (q, len(cols)), local rows."""
-        lc = self.loc[cols]
-        out = self.a0[lc].T
-        if self.s:
-            top = self.ut[: self.s]
-            out = out - top.T @ top[:, lc]
-        return out
-
-    def block(self, cols: np.ndarray) -> np.ndarray:
-        lc = self.loc[cols]
-        out = self.a0[np.ix_(lc, lc)]
-        if self.s:
-            top = self.ut[: self.s][:, lc]
-            out = out - top.T @ top
-        return out
-
-    def drop(self, cols: np.ndarray) -> None:
-        lc = self.loc[cols]
-        d = lc.shape[0]
-        if d == 1:
-            lj = int(lc[0])
-            w = self.a0[lj].copy()
-            if self.s:
-                top = self.ut[: self.s]
-                w -= top.T @ top[:, lj]
-            pivot = w[lj]
-            if not pivot > 0.0:
-                raise np.linalg.LinAlgError("non-positive pivot in the downdate")
-            u = (w / math.sqrt(pivot))[None, :]
-        else:
-            w = self.columns(cols)
-            chol = scipy.linalg.cholesky(w[lc], lower=True)
-            u = scipy.linalg.solve_triangular(chol, w.T, lower=True)
-        self.ut[self.s : self.s + d] = u
-        self.s += d
-        sq = np.einsum("ij,ij->j", u, u)
-        self.diag -= sq
-        self.mag += sq
-        self.diag[lc] = np.inf
-        self.mag[lc] = 0.0
-        self.on[lc] = False
-        if self.b is not None and self.r_loc is not None:
-            self.b -= u.T @ (u @ self.r_loc)
-            self.b[lc] = 0.0
-
-    def in_doubt(self, growth_limit: float) -> bool:
-        """Whether the downdated diagonal may have lost accuracy a fresh inverse would keep.
-
-        The error scale of entry j is the larger of its magnitude ``m_j`` (rounding in the
-        downdates) and the largest diagonal entry at the last factorization (errors of a
-        computed inverse are about eps times its norm, in every entry). It is in doubt when
-        that scale exceeds both ``growth_limit`` times the entry and ``EXCESS_LIMIT`` times the
-        largest current entry (the error scale a fresh inverse of the remaining matrix has).
-        """
-        if growth_limit <= 1.0:
-            return True
-        smallest = float(self.diag.min())  # dropped entries are +inf
-        if smallest <= 0.0:
-            return True
-        if max(float(self.mag.max()), self.scale0) <= growth_limit * smallest:
-            return False  # the common case: no entry can be in doubt
-        largest = float(np.max(self.diag, where=self.on, initial=0.0))
-        scale = np.maximum(self.mag, self.scale0)
-        bound = np.maximum(growth_limit * self.diag, EXCESS_LIMIT * largest)
-        return bool(np.any(scale > bound))
-
-    def r_squared(self) -> float | None:
-        if self.b is None or self.r_loc is None:
-            return None
-        return float(self.r_loc @ self.b)
 
 
 # --------------------------------------------------------------------------------------------
@@ -329,7 +159,7 @@ class _Units:
             mask[self.cols[u]] = True
         return mask
 
-    def inflation(self, eng: _Downdated, active_units: np.ndarray) -> np.ndarray:
+    def inflation(self, eng: DowndatedInverse, active_units: np.ndarray) -> np.ndarray:
         """Inflation of every unit on the VIF scale (NaN for inactive ones)."""
         out = np.empty(self.count)
         out[self.single] = eng.vif(self.single_cols)
@@ -478,7 +308,7 @@ def _by_response(
 
 
 def _holds(
-    eng: _Downdated,
+    eng: DowndatedInverse,
     units: _Units,
     active: np.ndarray,
     infl: np.ndarray,
@@ -635,7 +465,7 @@ def _sequence(
         inverse = None
     col_active = units.columns_mask(active, p)
     try:
-        eng = _Downdated(m, col_active, r_xy, inverse)
+        eng = DowndatedInverse(m, col_active, r_xy, inverse)
     except np.linalg.LinAlgError:
         raise MatrixError.at(
             "/matrix",
@@ -650,7 +480,6 @@ def _sequence(
     unprotected = ~protected
     any_protected = bool(protected.any())
     by_response = ordering == LEAST_RESPONSE_CORRELATION and response is not None
-    n_active = int(np.count_nonzero(col_active))
     while np.count_nonzero(active) > 1:
         # A lone predictor (or term) has inflation 1 by definition; with a threshold just
         # above 1 rounding could otherwise drop it and leave nothing to assess.
@@ -681,15 +510,7 @@ def _sequence(
         cols_u = units.cols[u]
         active[u] = False
         col_active[cols_u] = False
-        n_active -= df_u
-        try:
-            eng.drop(cols_u)
-        except (np.linalg.LinAlgError, ValueError):
-            eng.refactor(col_active)
-        if eng.in_doubt(growth_limit):
-            eng.refactor(col_active)
-        elif eng.s and n_active <= COMPACT_AT * eng.stored:
-            eng.compact()
+        eng.remove(cols_u, col_active, growth_limit)
         infl = units.inflation(eng, active)
         steps.append(
             RemovalStep(
@@ -709,9 +530,12 @@ def _sequence(
     high = np.flatnonzero(active & (infl > threshold))
     holds = _holds(eng, units, active, infl, high, protected)
     # Final accuracy check: the kept set's inflations from a fresh inverse.
-    fresh = units.inflation(_Downdated(m, col_active, None), active)
-    ok = bool(
-        np.allclose(fresh[active], infl[active], rtol=CHECK_RTOL, atol=0.0) or growth_limit <= 1.0
+    ok = agrees_with_fresh(
+        m,
+        col_active,
+        infl[active],
+        lambda fresh: units.inflation(fresh, active)[active],
+        growth_limit,
     )
     removal = base(
         steps=tuple(steps),
@@ -830,8 +654,9 @@ def removal_sequence(
     table matches statsmodels' ``variance_inflation_factor(standardize=True)`` on the remaining
     design with a constant, and every R^2 statsmodels' OLS on the remaining predictors.
 
-    Implementation: one Cholesky inverse (LAPACK potrf/potri) of M, then per drop O(p s)
-    work for s stored downdate rows: only the diagonal is kept current and the dropped
+    Implementation (the downdate engine, ``DowndatedInverse`` in ``_downdate``, where the
+    constants named here live): one Cholesky inverse (LAPACK potrf/potri) of M, then per drop
+    O(p s) work for s stored downdate rows: only the diagonal is kept current and the dropped
     column is fetched with one matrix-vector product over the stored rows; the stored form is
     folded into an explicit inverse of the remaining columns whenever a quarter of them are
     gone (``COMPACT_AT``), so a whole sequence costs O(p^3) with a small constant. Accuracy

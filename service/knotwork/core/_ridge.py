@@ -12,6 +12,7 @@ from knotwork_contract import Ridge, RidgeChoice, RidgePoint
 
 from ._dependencies import INVOLVED_TOL, Spectrum
 from ._errors import InputError, OptionError, Problem
+from ._regression import Regression
 
 #: The scale every k is stated on: the predictors' correlation matrix (Z'Z = R).
 K_SCALE = "correlation"
@@ -251,15 +252,9 @@ def ridge_analysis(
     M: np.ndarray,
     names: Sequence[str],
     *,
-    n: float,
+    regression: Regression,
     threshold: float,
     grid: Sequence[float] | None = None,
-    r_xy: np.ndarray | None = None,
-    sds: np.ndarray | None = None,
-    response_sd: float | None = None,
-    means: np.ndarray | None = None,
-    response_mean: float | None = None,
-    intercept: bool = True,
     spectrum: Spectrum | None = None,
 ) -> Ridge:
     """Ridge trace (VIFs, effective df, coefficients) and the published choices of k.
@@ -270,23 +265,16 @@ def ridge_analysis(
         The predictors' correlation matrix (p, p), or their cosine matrix without intercept.
     names
         Predictor names in matrix order.
-    n
-        Number of observations (or sum of weights).
+    regression
+        The sample size and whether the model has an intercept (residual df n - p - 1, else
+        n - p); the response's correlations with the predictors (without them only VIFs,
+        effective df and the ``vif_threshold`` choice are computed); the scales and means for
+        coefficients and the intercept in original units.
     threshold
         VIF threshold of the ``vif_threshold`` rule (a rule of thumb: 5 or 10).
     grid
         Values of k on the correlation scale; None for the default grid (see
         :func:`default_grid`).
-    r_xy
-        Correlations of the predictors with the response; without it only VIFs, effective df
-        and the ``vif_threshold`` choice are computed.
-    sds, response_sd
-        Standard deviations of the predictors and the response (root mean squares without
-        intercept), for coefficients in original units.
-    means, response_mean
-        Means, for the original-scale intercept (with intercept only).
-    intercept
-        Whether the model has an intercept (residual df n - p - 1, else n - p).
     spectrum
         The eigen-decomposition of ``M`` when already computed.
 
@@ -351,10 +339,8 @@ def ridge_analysis(
     p = len(names)
     if m.shape != (p, p):
         raise InputError.at("/matrix", f"expected a {p} x {p} matrix, got shape {m.shape}")
-    r = None if r_xy is None else np.asarray(r_xy, dtype=float)
-    eig = _Eigen(m, spectrum, r)
-    nu = 1.0 if intercept else 0.0
-    dof = float(n) - nu
+    eig = _Eigen(m, spectrum, regression.r_xy)
+    dof = regression.dof
     residual_df = dof - p
     if grid is None:
         ks = default_grid(eig.l, threshold)
@@ -366,20 +352,6 @@ def ridge_analysis(
     else:
         ks = _validate_grid(grid)
         grid_rule = "given"
-    scale = None
-    if sds is not None and response_sd is not None:
-        scale = float(response_sd) / np.asarray(sds, dtype=float)
-    means_a = None if means is None else np.asarray(means, dtype=float)
-
-    def original(b: np.ndarray) -> tuple[tuple[float, ...] | None, float | None]:
-        if scale is None:
-            return None, None
-        beta = b * scale
-        icpt = None
-        if intercept and means_a is not None and response_mean is not None:
-            icpt = float(response_mean - beta @ means_a)
-        return tuple(beta.tolist()), icpt
-
     # The whole trace as a few array operations, turned into Python numbers once: per-point
     # numpy calls cost more than the arithmetic at the sizes a request has.
     vifs = eig.vifs(ks)  # (p, m)
@@ -398,11 +370,12 @@ def ridge_analysis(
         coefs = eig.coefficients(ks)
         rss_list = eig.rss(ks).tolist()
         coef_rows = coefs.T.tolist()
-        if scale is not None:
-            betas = coefs * scale[:, None]
+        units = regression.original(coefs)
+        if units is not None:
+            betas, icpts = units
             beta_rows = betas.T.tolist()
-            if intercept and means_a is not None and response_mean is not None:
-                icpt_list = (response_mean - means_a @ betas).tolist()
+            if icpts is not None:
+                icpt_list = icpts.tolist()
     trace = []
     for i, k in enumerate(ks.tolist()):
         vif_list: list[float | None] = list(vif_rows[i])
@@ -455,7 +428,8 @@ def ridge_analysis(
             if not (k == 0.0 and zero_aliased):
                 b = eig.coefficients(kk)[:, 0]
                 b_t = tuple(b.tolist())
-                orig, _ = original(b)
+                units = regression.original(b)
+                orig = None if units is None else tuple(units[0].tolist())
         return RidgeChoice(
             rule=rule,
             k=float(k),
