@@ -555,3 +555,28 @@ def test_threshold_just_above_one_keeps_one_predictor() -> None:
     removal = removal_sequence(r, ["a", "b", "c", "d"], threshold=1.0000000000000002)
     assert len(removal.kept) == 1
     assert len(removal.steps) == 3
+
+
+def test_a_rank_one_design_with_a_term_keeps_one_predictor():
+    # Six columns driven by one factor (five exact relations at the 1e-10 tolerance), a
+    # two-column term and a response: the aliased drops must leave a predictor. The second
+    # ordering (least response correlation) once took the term after four single columns,
+    # every column, and failed.
+    from knotwork.core import Options, assess, from_correlation
+
+    rng = np.random.default_rng(42)
+    p, n = 6, 17
+    rng.integers(3, 40)  # the draws of the generator that first found the case, kept as they were
+    x = rng.standard_normal((n, 1)) @ rng.standard_normal((1, p))
+    x = x + rng.choice([0.3, 1e-3, 1e-6]) * rng.standard_normal((n, p))
+    y = x[:, :2].sum(axis=1) + rng.standard_normal(n)
+    c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
+    names = names_of(p)
+    summary = from_correlation(
+        names, c[:-1, :-1], n, response=("y", c[:-1, -1].tolist()), terms={"t": names[1:3]}
+    )
+    result = assess(summary, Options(threshold=10.0, sections=("removal",)))
+    assert result.removal is not None
+    for removal in (result.removal, result.removal.alternative):
+        assert removal is not None
+        assert len(removal.kept) >= 1

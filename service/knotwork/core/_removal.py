@@ -243,16 +243,23 @@ def _plan_aliased(
     chosen: list[int] = []
     cols: list[int] = []
     current = 0
-    for u in order:
-        if current == d:
-            break
-        if protected[u]:
-            continue
-        trial = cols + [int(c) for c in units.cols[u]]
-        r = rank(trial)
-        if r > current:
-            chosen.append(u)
-            cols, current = trial, r
+    p = len(names)
+    # d columns suffice to remove d relations. A multi-column term can raise the rank by less
+    # than its width, so the first pass never drops more than d columns in all; only if that
+    # leaves a relation does the second pass take wider units, and never every column.
+    for most in (d, p - 1):
+        for u in order:
+            if current == d:
+                break
+            if protected[u] or u in chosen:
+                continue
+            trial = cols + [int(c) for c in units.cols[u]]
+            if len(trial) > most:
+                continue
+            r = rank(trial)
+            if r > current:
+                chosen.append(u)
+                cols, current = trial, r
     used: set[int] = set()
     drops = []
     for u in chosen:
