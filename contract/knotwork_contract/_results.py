@@ -132,7 +132,7 @@ class Tangle(_Result, frozen=True):
 
 
 class ProportionRow(_Result, frozen=True):
-    """The variance-decomposition proportions of one component with a high condition index.
+    """The larger variance-decomposition proportions of one component with a high index.
 
     Attributes
     ----------
@@ -140,14 +140,18 @@ class ProportionRow(_Result, frozen=True):
         Its position in ``eigenvalues`` (0 is the largest).
     index
         Its condition index.
+    variables
+        The columns whose share on this component is at least 0.1, in the order of ``names``
+        (smaller shares are in the full table only). A column has at most ten such shares over
+        all components, so these rows stay O(p) together.
     proportions
-        ``proportions[j]``: the share of column *j*'s coefficient variance due to this
-        component, in the order of ``names``.
+        Their shares of coefficient variance due to this component, in the same order.
     """
 
     component: int = 0
     index: float = math.nan
-    proportions: Sequence[float | None] = ()
+    variables: Sequence[str] = ()
+    proportions: Sequence[float] = ()
 
 
 class Conditioning(_Result, frozen=True):
@@ -190,9 +194,10 @@ class Conditioning(_Result, frozen=True):
         How many eigenvalues are null (exact dependencies, reported separately).
     high_index_rows
         The rows of ``proportions`` whose condition index is above ``index_threshold``, largest
-        index first: the part of the table that says which columns a near dependency ties
-        together. Always given; with ``detail`` ``"summary"`` the whole ``proportions`` table
-        is left out (empty) and these rows stand for it.
+        index first, each with its shares of at least 0.1: the part of the table that says
+        which columns a near dependency ties together. Always given; with ``detail``
+        ``"summary"`` the whole ``proportions`` table is left out (empty) and these rows stand
+        for it.
     """
 
     basis: str = ""

@@ -80,7 +80,10 @@ def test_high_index_rows_are_the_full_table_rows_above_the_index_threshold(
     ]
     assert [(r["component"], r["index"]) for r in rows] == sorted(expected, key=lambda e: -e[1])
     for row in rows:
-        assert row["proportions"] == full["proportions"][row["component"]]
+        table_row = full["proportions"][row["component"]]
+        large = [j for j, share in enumerate(table_row) if share is not None and share >= 0.1]
+        assert row["variables"] == [full["names"][j] for j in large]
+        assert row["proportions"] == [table_row[j] for j in large]
 
 
 def test_strongest_partials_are_the_largest_of_the_full_table(answers: dict[str, Any]) -> None:

@@ -12,6 +12,9 @@ from knotwork_contract import Conditioning, ProportionRow, Tangle
 #: The bases a cross-product matrix can be given in; ``Conditioning.basis`` echoes one of them.
 BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation")
 
+#: The smallest share a high-index row lists (the full table has every share).
+ROW_FLOOR = 0.1
+
 
 def condition_diagnostics(
     cross: np.ndarray,
@@ -156,12 +159,22 @@ def condition_diagnostics(
                 )
             )
     tangles.sort(key=lambda t: -t.index)
-    # Indices grow with k, so the high ones are the last rows; largest index first.
-    high_rows = tuple(
-        ProportionRow(component=k, index=eta, proportions=proportions[k])
-        for k, eta in reversed(list(enumerate(indices)))
-        if eta is not None and eta > index_threshold
-    )
+    # Indices grow with k, so the high ones are the last rows; largest index first. Each
+    # column's shares sum to 1, so it has at most 1 / ROW_FLOOR shares at or above the floor.
+    high_rows = []
+    for k in range(m - 1, -1, -1):
+        eta = indices[k]
+        if eta is None or eta <= index_threshold:
+            continue
+        members = np.flatnonzero(shares[:, k] >= ROW_FLOOR).tolist()
+        high_rows.append(
+            ProportionRow(
+                component=k,
+                index=eta,
+                variables=tuple(names[j] for j in members),
+                proportions=tuple(float(shares[j, k]) for j in members),
+            )
+        )
 
     return Conditioning(
         basis=basis,
@@ -175,5 +188,5 @@ def condition_diagnostics(
         proportion_threshold=float(proportion_threshold),
         null_rtol=float(null_rtol),
         null_dim=null_dim,
-        high_index_rows=high_rows,
+        high_index_rows=tuple(high_rows),
     )
