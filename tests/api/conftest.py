@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Iterator
 
 import pytest
-from api_support import TOKENS
+from bodies_and_problems import TOKENS
 from litestar.testing import TestClient
 
 from knotwork.api import create_app

@@ -8,7 +8,7 @@ import msgspec
 import numpy as np
 import pyarrow as pa
 import pytest
-from api_support import arrow_file, arrow_stream, parquet
+from bodies_and_problems import arrow_file, arrow_stream, parquet
 from numpy.testing import assert_array_equal
 
 from knotwork.codecs import (

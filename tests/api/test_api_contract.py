@@ -13,7 +13,7 @@ from typing import Any
 
 import pyarrow as pa
 import pytest
-from api_support import (
+from bodies_and_problems import (
     ARROW,
     JSON,
     PARQUET,

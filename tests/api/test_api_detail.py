@@ -14,7 +14,7 @@ import msgspec
 import numpy as np
 import pyarrow as pa
 import pytest
-from api_support import ARROW, JSON, arrow_stream
+from bodies_and_problems import ARROW, JSON, arrow_stream
 
 from knotwork.core import summary_detail
 from knotwork.demo import garden_centres, request_body

@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 import pytest
-from api_support import (
+from bodies_and_problems import (
     ARROW,
     ARROW_FILE,
     JSON,

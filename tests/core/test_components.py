@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from core_support import NIST_B, standardize, summary
+from nist_longley import NIST_B, standardize, summary
 from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from sklearn.decomposition import PCA

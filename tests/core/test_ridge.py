@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import statsmodels.api as sm
-from core_support import NIST_B, standardize, summary
+from nist_longley import NIST_B, standardize, summary
 from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from sklearn.linear_model import Ridge as SkRidge
