@@ -154,11 +154,11 @@ def test_response_is_excluded_from_predictors(longley: pd.DataFrame) -> None:
 
 @pytest.mark.parametrize("block", [1, 7, 1 << 20])
 def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None:
-    import knotwork.core._summary as summary_module
+    import knotwork_contract._moments as moments_module
 
     x = rng.normal(size=(50, 3)) * [1, 1e3, 1e-3] + [0, 1e6, 5]
     ref = from_table({f"c{j}": x[:, j] for j in range(3)})
-    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", block * 8 * 3)
+    monkeypatch.setattr(moments_module, "_BLOCK_BYTES", block * 8 * 3)
     got = from_table({f"c{j}": x[:, j] for j in range(3)})
     assert_allclose(got.comoments, ref.comoments, rtol=1e-10)
     assert_allclose(got.means, ref.means, rtol=1e-13, atol=1e-15)
@@ -166,9 +166,9 @@ def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None
 
 def _small_blocks(monkeypatch: pytest.MonkeyPatch, rows: int, columns: int) -> None:
     """Row blocks of ``rows`` rows for ``columns`` summarized columns (plus the ones column)."""
-    import knotwork.core._summary as summary_module
+    import knotwork_contract._moments as moments_module
 
-    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", rows * 8 * (columns + 1))
+    monkeypatch.setattr(moments_module, "_BLOCK_BYTES", rows * 8 * (columns + 1))
 
 
 def test_one_pass_over_sorted_rows_keeps_its_digits(monkeypatch, rng) -> None:
