@@ -9,6 +9,7 @@ from numpy.testing import assert_allclose
 
 from knotwork.core import (
     Options,
+    TooFewDataError,
     assess,
     from_correlation,
     from_frame,
@@ -118,6 +119,20 @@ def test_pairwise_correlations_equal_pandas(rng: np.random.Generator) -> None:
     assert s.n == (present.T @ present).to_numpy().min()
     assert not s.has_moments
     assert "pairwise_deletion" in {n.code for n in s.notes}
+
+
+def test_pairwise_needs_more_joint_rows_than_predictors() -> None:
+    # 'a' and 'b' share one row: the pair is named, with its count of joint rows.
+    nan = np.nan
+    columns = {
+        "a": [1.0, 2.0, 3.0, nan, nan, nan, 1.5],
+        "b": [nan, nan, nan, 1.0, 2.0, 3.0, 2.5],
+        "c": [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 8.0],
+    }
+    with pytest.raises(TooFewDataError) as caught:
+        from_table(columns, missing="pairwise")
+    assert caught.value.problems[0].pointer == "/columns/b"
+    assert "only 1 rows have both 'a' and 'b'" in caught.value.problems[0].reason
 
 
 def test_drop_rows_equals_complete_cases(rng: np.random.Generator) -> None:
