@@ -3,9 +3,23 @@
 Everything a request may contain and every record of an answer is declared here once, as msgspec
 Structs whose constraints, defaults and descriptions are the rules; the service's decoders, its
 query-parameter parser, its core's results and its OpenAPI document, and the client's local
-checks and decoders are derived from these declarations.
+checks and decoders are derived from these declarations. The moments kernel (centred co-moments
+of rows, their exact merge, pairwise deletion, indicator-column names) is here too, so the
+service and the client summarize rows with the same arithmetic.
 """
 
+from ._moments import (
+    Moments,
+    NotFinite,
+    PairwiseMoments,
+    comoments,
+    correlation_from_comoments,
+    indicator_columns,
+    indicator_name,
+    merge_all,
+    pairwise_comoments,
+    sorted_levels,
+)
 from ._pointers import escape, join, msgspec_fault
 from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
@@ -71,11 +85,14 @@ __all__ = [
     "Dependency",
     "FarrarGlauber",
     "Input",
+    "Moments",
     "MomentsInput",
     "MomentsPart",
     "Name",
+    "NotFinite",
     "Notice",
     "OptionsError",
+    "PairwiseMoments",
     "PartialPair",
     "Problem",
     "ProblemDocument",
@@ -98,9 +115,16 @@ __all__ = [
     "VariableF",
     "VariableInflation",
     "check_options",
+    "comoments",
+    "correlation_from_comoments",
     "escape",
+    "indicator_columns",
+    "indicator_name",
     "join",
+    "merge_all",
     "msgspec_fault",
     "options_query",
+    "pairwise_comoments",
     "parse_query",
+    "sorted_levels",
 ]

@@ -26,9 +26,9 @@ def test_assess_stops_when_asked(rng: np.random.Generator) -> None:
 
 
 def test_summary_stops_between_row_blocks(monkeypatch, rng: np.random.Generator) -> None:
-    import knotwork.core._summary as summary_module
+    import knotwork_contract._moments as moments_module
 
-    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", 8 * 3 * 10)  # 10 rows a block
+    monkeypatch.setattr(moments_module, "_BLOCK_BYTES", 8 * 3 * 10)  # 10 rows a block
     x = rng.normal(size=(1000, 2))
     blocks = []
 

@@ -9,6 +9,7 @@ from numpy.testing import assert_allclose
 
 from knotwork.core import (
     Options,
+    TooFewDataError,
     assess,
     from_correlation,
     from_frame,
@@ -120,6 +121,20 @@ def test_pairwise_correlations_equal_pandas(rng: np.random.Generator) -> None:
     assert "pairwise_deletion" in {n.code for n in s.notes}
 
 
+def test_pairwise_needs_more_joint_rows_than_predictors() -> None:
+    # 'a' and 'b' share one row: the pair is named, with its count of joint rows.
+    nan = np.nan
+    columns = {
+        "a": [1.0, 2.0, 3.0, nan, nan, nan, 1.5],
+        "b": [nan, nan, nan, 1.0, 2.0, 3.0, 2.5],
+        "c": [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 8.0],
+    }
+    with pytest.raises(TooFewDataError) as caught:
+        from_table(columns, missing="pairwise")
+    assert caught.value.problems[0].pointer == "/columns/b"
+    assert "only 1 rows have both 'a' and 'b'" in caught.value.problems[0].reason
+
+
 def test_drop_rows_equals_complete_cases(rng: np.random.Generator) -> None:
     x = rng.normal(size=(100, 3))
     x[3, 0] = x[10, 2] = np.nan
@@ -154,11 +169,11 @@ def test_response_is_excluded_from_predictors(longley: pd.DataFrame) -> None:
 
 @pytest.mark.parametrize("block", [1, 7, 1 << 20])
 def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None:
-    import knotwork.core._summary as summary_module
+    import knotwork_contract._moments as moments_module
 
     x = rng.normal(size=(50, 3)) * [1, 1e3, 1e-3] + [0, 1e6, 5]
     ref = from_table({f"c{j}": x[:, j] for j in range(3)})
-    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", block * 8 * 3)
+    monkeypatch.setattr(moments_module, "_BLOCK_BYTES", block * 8 * 3)
     got = from_table({f"c{j}": x[:, j] for j in range(3)})
     assert_allclose(got.comoments, ref.comoments, rtol=1e-10)
     assert_allclose(got.means, ref.means, rtol=1e-13, atol=1e-15)
@@ -166,9 +181,9 @@ def test_block_size_does_not_change_the_moments(monkeypatch, rng, block) -> None
 
 def _small_blocks(monkeypatch: pytest.MonkeyPatch, rows: int, columns: int) -> None:
     """Row blocks of ``rows`` rows for ``columns`` summarized columns (plus the ones column)."""
-    import knotwork.core._summary as summary_module
+    import knotwork_contract._moments as moments_module
 
-    monkeypatch.setattr(summary_module, "_BLOCK_BYTES", rows * 8 * (columns + 1))
+    monkeypatch.setattr(moments_module, "_BLOCK_BYTES", rows * 8 * (columns + 1))
 
 
 def test_one_pass_over_sorted_rows_keeps_its_digits(monkeypatch, rng) -> None:

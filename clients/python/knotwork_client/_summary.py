@@ -3,7 +3,9 @@
 A :class:`Summary` holds, for every column it tracks, the number of observations (or the sum
 of frequency weights), the means and the centred co-moments. Summaries of parts of the data
 merge exactly, so a file read in batches, a stream of record batches and the partitions of a
-Dask dataframe all reduce to the same numbers as the whole table at once.
+Dask dataframe all reduce to the same numbers as the whole table at once. The arithmetic is
+the service's own (the moments kernel of ``knotwork_contract``); this module reads the blocks,
+counts missing values and keeps track of categorical levels.
 """
 
 from __future__ import annotations
@@ -15,6 +17,19 @@ from typing import Any, Literal
 
 import numpy as np
 
+from knotwork_contract import (
+    Moments,
+    NotFinite,
+    PairwiseMoments,
+    comoments,
+    correlation_from_comoments,
+    indicator_columns,
+    indicator_name,
+    merge_all,
+    pairwise_comoments,
+    sorted_levels,
+)
+
 from ._exceptions import DataError, MissingValuesError
 from ._tables import Block, iter_blocks
 
@@ -22,136 +37,6 @@ __all__ = ["MISSING_POLICIES", "Summary", "merge_summaries", "summarize"]
 
 MissingPolicy = Literal["reject", "drop_rows", "pairwise"]
 MISSING_POLICIES: tuple[str, ...] = ("reject", "drop_rows", "pairwise")
-
-
-@dataclass(frozen=True, eq=False)
-class _Complete:
-    """Moments over complete rows: weight total, means and centred co-moments."""
-
-    n: float
-    mean: np.ndarray
-    com: np.ndarray
-
-    @staticmethod
-    def empty(q: int) -> _Complete:
-        return _Complete(0.0, np.zeros(q), np.zeros((q, q)))
-
-    @staticmethod
-    def of_rows(x: np.ndarray, w: np.ndarray | None, sums: np.ndarray | None = None) -> _Complete:
-        """Moments of a block of complete rows (``x`` is consumed: it is centred in place).
-
-        ``sums`` are the column sums of ``x`` when the caller has them already (unweighted).
-        """
-        rows, q = x.shape
-        total = float(rows) if w is None else float(w.sum())
-        if rows == 0 or total == 0.0:
-            return _Complete.empty(q)
-        if w is None:
-            mean = sums / total if sums is not None else x.mean(axis=0)
-        else:
-            mean = (w @ x) / total
-        x -= mean
-        # Corrected two-pass: the centred block's own mean (rounding residue of the first
-        # pass) is folded back in, as in Chan, Golub & LeVeque (1983), eq. 1.7.
-        resid = x.mean(axis=0) if w is None else (w @ x) / total
-        if w is not None:
-            x *= np.sqrt(w)[:, None]
-        com = np.dot(x.T, x)  # np.dot spots the transpose and uses the faster syrk kernel
-        com -= total * np.outer(resid, resid)
-        return _Complete(total, mean + resid, com)
-
-    def merge(self, other: _Complete) -> _Complete:
-        if other.n == 0.0:
-            return self
-        if self.n == 0.0:
-            return other
-        n = self.n + other.n
-        delta = other.mean - self.mean
-        mean = self.mean + delta * (other.n / n)
-        com = self.com + other.com + np.outer(delta, delta) * (self.n * other.n / n)
-        return _Complete(n, mean, com)
-
-    def embed(self, src: np.ndarray, zero: np.ndarray) -> _Complete:
-        keep = ~zero
-        mean = np.where(keep, self.mean[src], 0.0)
-        com = np.where(keep[:, None] & keep[None, :], self.com[np.ix_(src, src)], 0.0)
-        return _Complete(self.n, mean, com)
-
-
-@dataclass(frozen=True, eq=False)
-class _Pairwise:
-    """Moments over every pair of columns, each pair on the rows where both are observed.
-
-    ``n[i, j]`` is the weight of rows where columns i and j are both observed, ``mean[i, j]``
-    the mean of column i over those rows, ``com[i, j]`` the centred co-moment of i and j over
-    them, and ``sq[i, j]`` the centred sum of squares of column i over them.
-    """
-
-    n: np.ndarray
-    mean: np.ndarray
-    com: np.ndarray
-    sq: np.ndarray
-
-    @staticmethod
-    def empty(q: int) -> _Pairwise:
-        z = np.zeros((q, q))
-        return _Pairwise(z, z.copy(), z.copy(), z.copy())
-
-    @staticmethod
-    def of_rows(x: np.ndarray, w: np.ndarray | None) -> _Pairwise:
-        rows, q = x.shape
-        if rows == 0:
-            return _Pairwise.empty(q)
-        seen = ~np.isnan(x)
-        count = seen.sum(axis=0)
-        filled = np.where(seen, x, 0.0)
-        # Shift each column by its block mean before forming products, so that the one-pass
-        # sums below work on values of the order of the spread, not of the mean.
-        shift = filled.sum(axis=0) / np.maximum(count, 1)
-        y = np.where(seen, x - shift, 0.0)
-        o = seen.astype(np.float64)
-        ow = o if w is None else o * w[:, None]
-        yw = y if w is None else y * w[:, None]
-        n = o.T @ ow
-        sy = y.T @ ow
-        syy = y.T @ yw
-        sy2 = (y * y).T @ ow
-        has = n > 0
-        my = np.divide(sy, n, out=np.zeros_like(sy), where=has)
-        com = np.where(has, syy - n * my * my.T, 0.0)
-        sq = np.where(has, sy2 - n * my * my, 0.0)
-        mean = np.where(has, my + shift[:, None], 0.0)
-        return _Pairwise(n, mean, com, sq)
-
-    def merge(self, other: _Pairwise) -> _Pairwise:
-        n = self.n + other.n
-        has = n > 0
-        share = np.divide(other.n, n, out=np.zeros_like(n), where=has)
-        cross = np.divide(self.n * other.n, n, out=np.zeros_like(n), where=has)
-        delta = other.mean - self.mean
-        mean = self.mean + delta * share
-        com = self.com + other.com + delta * delta.T * cross
-        sq = self.sq + other.sq + delta * delta * cross
-        return _Pairwise(n, mean, com, sq)
-
-    def embed(self, src: np.ndarray, zero: np.ndarray) -> _Pairwise:
-        # An indicator column absent from this part is 0 wherever its variable is observed, so
-        # it shares the observation pattern of any other level of that variable (``src``) and
-        # contributes zero means and zero co-moments; ``src < 0`` means never observed here.
-        valid = src >= 0
-        s = np.where(valid, src, 0)
-        both = valid[:, None] & valid[None, :]
-        rows_kept = (~zero)[:, None] & both
-        n = np.where(both, self.n[np.ix_(s, s)], 0.0)
-        mean = np.where(rows_kept, self.mean[np.ix_(s, s)], 0.0)
-        com = np.where(rows_kept & (~zero)[None, :], self.com[np.ix_(s, s)], 0.0)
-        sq = np.where(rows_kept, self.sq[np.ix_(s, s)], 0.0)
-        return _Pairwise(n, mean, com, sq)
-
-    @property
-    def complete(self) -> bool:
-        """True when every pair was seen on the same rows (no value was missing)."""
-        return bool(np.all(self.n == self.n.flat[0])) if self.n.size else True
 
 
 @dataclass(frozen=True, eq=False)
@@ -193,7 +78,7 @@ class Summary:
     rows_read: int
     rows_complete: int
     missing_counts: Mapping[str, int]
-    _moments: _Complete | _Pairwise = field(repr=False)
+    _moments: Moments | PairwiseMoments = field(repr=False)
 
     # --- what the summary describes ----------------------------------------------------
 
@@ -201,13 +86,13 @@ class Summary:
     def columns(self) -> tuple[str, ...]:
         """Every tracked column: numeric, then one indicator per level of each categorical."""
         return self.numeric + tuple(
-            _indicator(var, level) for var, lv in self.levels.items() for level in lv
+            indicator_name(var, level) for var, lv in self.levels.items() for level in lv
         )
 
     @property
     def terms(self) -> dict[str, list[str]]:
         """Categorical variable -> its indicator columns sent (the reference level left out)."""
-        return {var: [_indicator(var, lv_) for lv_ in lv[1:]] for var, lv in self.levels.items()}
+        return {var: list(indicator_columns(var, lv)) for var, lv in self.levels.items()}
 
     @property
     def predictors(self) -> tuple[str, ...]:
@@ -223,13 +108,13 @@ class Summary:
     @property
     def pairwise(self) -> bool:
         """Whether pairs of columns were summarized on different rows (missing="pairwise")."""
-        return isinstance(self._moments, _Pairwise)
+        return isinstance(self._moments, PairwiseMoments)
 
     @property
     def n(self) -> float:
         """Observations (or the sum of weights); under pairwise deletion, the smallest pair's."""
         m = self._moments
-        if isinstance(m, _Complete):
+        if isinstance(m, Moments):
             return m.n
         idx = self._index(self.names)
         return float(m.n[np.ix_(idx, idx)].min()) if idx.size else 0.0
@@ -239,37 +124,35 @@ class Summary:
         """Means of ``names`` (under pairwise deletion, over each column's observed rows)."""
         m = self._moments
         idx = self._index(self.names)
-        return m.mean[idx].copy() if isinstance(m, _Complete) else m.mean[idx, idx].copy()
+        return m.mean[idx].copy() if isinstance(m, Moments) else m.mean[idx, idx].copy()
 
     @property
     def comoments(self) -> np.ndarray:
         """Centred cross-products sum w (x_i - mean_i)(x_j - mean_j) over ``names``."""
         idx = self._index(self.names)
-        return self._moments.com[np.ix_(idx, idx)].copy()
+        return self._moments.comoments[np.ix_(idx, idx)].copy()
 
     @property
     def covariance(self) -> np.ndarray:
         """Sample covariance of ``names``: co-moments over n - 1 (frequency-weight convention)."""
         m = self._moments
         idx = self._index(self.names)
-        if isinstance(m, _Complete):
-            return m.com[np.ix_(idx, idx)] / (m.n - 1.0)
-        return m.com[np.ix_(idx, idx)] / (m.n[np.ix_(idx, idx)] - 1.0)
+        if isinstance(m, Moments):
+            return m.comoments[np.ix_(idx, idx)] / (m.n - 1.0)
+        return m.comoments[np.ix_(idx, idx)] / (m.n[np.ix_(idx, idx)] - 1.0)
 
     @property
     def correlation(self) -> np.ndarray:
-        """Pearson correlations of ``names`` (pairwise-complete under pairwise deletion)."""
+        """Pearson correlations of ``names`` (pairwise-complete under pairwise deletion).
+
+        Without pairwise deletion the service's rule applies: clipped to [-1, 1], and a column
+        with no spread has zero correlations (:meth:`to_input` refuses such a column).
+        """
         m = self._moments
         idx = self._index(self.names)
-        com = m.com[np.ix_(idx, idx)]
-        if isinstance(m, _Complete):
-            sd = np.sqrt(np.diag(com))
-            denom = np.outer(sd, sd)
-        else:
-            sq = m.sq[np.ix_(idx, idx)]
-            denom = np.sqrt(sq * sq.T)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            r = com / denom
+        if isinstance(m, Moments):
+            return correlation_from_comoments(m.comoments[np.ix_(idx, idx)])
+        r = m.correlation()[np.ix_(idx, idx)]
         np.fill_diagonal(r, 1.0)
         return r
 
@@ -277,7 +160,7 @@ class Summary:
     def notes(self) -> list[str]:
         """Things to know when reading results computed from this summary."""
         notes = []
-        if isinstance(self._moments, _Pairwise) and not self._moments.complete:
+        if isinstance(self._moments, PairwiseMoments) and not self._moments.complete:
             notes.append(
                 "pairwise deletion: each correlation uses the rows where both columns are "
                 "observed, n is the smallest pairwise count, and the matrix may not be positive "
@@ -331,14 +214,13 @@ class Summary:
             raise TypeError(f"can only merge a Summary, got {type(other).__name__}")
         self._check_compatible(other)
         levels = {
-            var: tuple(sorted(set(self.levels[var]) | set(other.levels[var])))
-            for var in self.levels
+            var: sorted_levels((*self.levels[var], *other.levels[var])) for var in self.levels
         }
         columns = self.numeric + tuple(
-            _indicator(var, level) for var, lv in levels.items() for level in lv
+            indicator_name(var, level) for var, lv in levels.items() for level in lv
         )
-        mine = self._moments.embed(*self._embedding(columns, levels))
-        theirs = other._moments.embed(*other._embedding(columns, levels))
+        mine = _embed(self._moments, *self._embedding(columns, levels))
+        theirs = _embed(other._moments, *other._embedding(columns, levels))
         counts = dict(self.missing_counts)
         for k, v in other.missing_counts.items():
             counts[k] = counts.get(k, 0) + v
@@ -380,10 +262,10 @@ class Summary:
         k = len(self.numeric)
         for var, lv in levels.items():
             own = self.levels[var]
-            stand_in = where[_indicator(var, own[0])] if own else -1
+            stand_in = where[indicator_name(var, own[0])] if own else -1
             for level in lv:
                 if level in own:
-                    src[k] = where[_indicator(var, level)]
+                    src[k] = where[indicator_name(var, level)]
                 else:
                     src[k], zero[k] = stand_in, True
                 k += 1
@@ -410,7 +292,8 @@ class Summary:
             raise ValueError(f"kind must be 'auto', 'moments' or 'correlation', got {kind!r}")
         self._check_sendable()
         if kind == "auto":
-            pairwise_gaps = isinstance(self._moments, _Pairwise) and not self._moments.complete
+            m = self._moments
+            pairwise_gaps = isinstance(m, PairwiseMoments) and not m.complete
             kind = "correlation" if pairwise_gaps else "moments"
         doc: dict[str, Any]
         if kind == "moments":
@@ -461,8 +344,28 @@ class Summary:
             )
 
 
-def _indicator(var: str, level: str) -> str:
-    return f"{var}[{level}]"
+def _embed(
+    m: Moments | PairwiseMoments, src: np.ndarray, zero: np.ndarray
+) -> Moments | PairwiseMoments:
+    """The moments over a wider set of columns: column ``k`` is this part's column ``src[k]``,
+    or, where ``zero[k]``, an indicator of a level this part never saw (zero on its rows)."""
+    keep = ~zero
+    if isinstance(m, Moments):
+        mean = np.where(keep, m.mean[src], 0.0)
+        com = np.where(keep[:, None] & keep[None, :], m.comoments[np.ix_(src, src)], 0.0)
+        return Moments(m.n, mean, com)
+    # An indicator column absent from this part is 0 wherever its variable is observed, so
+    # it shares the observation pattern of any other level of that variable (``src``) and
+    # contributes zero means and zero co-moments; ``src < 0`` means never observed here.
+    valid = src >= 0
+    s = np.where(valid, src, 0)
+    both = valid[:, None] & valid[None, :]
+    rows_kept = keep[:, None] & both
+    n = np.where(both, m.n[np.ix_(s, s)], 0.0)
+    mean = np.where(rows_kept, m.mean[np.ix_(s, s)], 0.0)
+    com = np.where(rows_kept & keep[None, :], m.comoments[np.ix_(s, s)], 0.0)
+    sq = np.where(rows_kept, m.squares[np.ix_(s, s)], 0.0)
+    return PairwiseMoments(n, mean, com, sq)
 
 
 # --- building summaries ----------------------------------------------------------------
@@ -562,36 +465,36 @@ def _missing_counts(
 
 def _numeric_fast(
     block: Block, numeric_names: tuple[str, ...], w: np.ndarray | None
-) -> _Complete | None:
-    """Moments of a block of numbers only, with no missing value, in three passes; else None.
+) -> Moments | None:
+    """Moments of a block of numbers only, taken to be complete; None when a value is missing
+    or infinite (then the block takes the careful path).
 
-    Each column is summed (a NaN or an infinity makes its sum non-finite, which sends the
-    block to the careful path), then centred straight into a column of the block matrix, whose
-    Gram product gives the co-moments. Centring by the block's own mean (rounded, error
-    delta) adds only ``n delta delta^T`` to the co-moments, second order in rounding, so no
-    correction pass is needed here.
+    Without weights the values are not looked at beforehand: the kernel reads the rows once
+    and raises :class:`~knotwork_contract.NotFinite` when one is not finite. With weights (whose
+    sum is needed first anyway) the kernel runs and its result is checked.
     """
-    rows, k = block.rows, len(numeric_names)
-    if rows == 0 or (w is not None and np.isnan(w).any()):
+    if block.rows == 0:
         return None
     cols = [block.numeric[name] for name in numeric_names]
     if w is None:
-        total = float(rows)
-        sums = np.array([col.sum() for col in cols])
-    else:
-        total = float(w.sum())
-        if total == 0.0:
+        try:
+            return comoments(cols, optimistic=True)
+        except NotFinite:
             return None
-        sums = np.array([np.dot(w, col) for col in cols])
-    if not np.isfinite(sums).all():
+    if not float(w.sum()) > 0.0:  # a missing weight, or none above zero
         return None
-    mean = sums / total
-    x = np.empty((rows, k), dtype=np.float64, order="F")
-    for j, col in enumerate(cols):
-        np.subtract(col, mean[j], out=x[:, j])
-    if w is not None:
-        x *= np.sqrt(w)[:, None]
-    return _Complete(total, mean, np.dot(x.T, x))
+    with np.errstate(invalid="ignore", over="ignore"):  # the result is checked below
+        m = comoments(cols, w)
+    finite = np.isfinite(m.mean).all() and np.isfinite(np.diagonal(m.comoments)).all()
+    return m if finite else None
+
+
+def _complete_moments(x: np.ndarray, w: np.ndarray | None) -> Moments:
+    """Moments of complete rows (the columns of ``x``); no rows (or no weight) gives none."""
+    rows, q = x.shape
+    if rows == 0 or (w is not None and not float(w.sum()) > 0.0):
+        return Moments.empty(q)
+    return comoments([x[:, j] for j in range(q)], w)
 
 
 def _block_summary(block: Block, spec: _Spec) -> Summary:
@@ -650,20 +553,19 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
     for name, (codes, lv) in block.categorical.items():
         c = codes if every else codes[keep]
         present = np.bincount(c[c >= 0], minlength=len(lv)) > 0
-        used = sorted(lv[i] for i in np.flatnonzero(present))
+        used = sorted_levels(lv[i] for i in np.flatnonzero(present))
         rank = {level: i for i, level in enumerate(used)}
         position = np.array([rank.get(level, -1) for level in lv], dtype=np.intp)
-        levels[name] = tuple(used)
+        levels[name] = used
         positions[name] = np.where(c >= 0, position[np.maximum(c, 0)], -1) if len(lv) else c
 
     width_all = sum(len(v) for v in levels.values())
     if every and width_all == 0:
-        x, sums = xnum, (colsum if clean else None)
+        x = xnum
     else:
         kept = rows if every else int(keep.sum())  # type: ignore[union-attr]
         x = np.empty((kept, k + width_all), dtype=np.float64, order="F")
         x[:, :k] = xnum if every else xnum[keep]
-        sums = None
         col = k
         for name, used_levels in levels.items():
             width = len(used_levels)
@@ -675,8 +577,8 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
                 x[~observed, col : col + width] = np.nan
             col += width
     wk = None if w is None else (w if every else w[keep])
-    moments: _Complete | _Pairwise = (
-        _Pairwise.of_rows(x, wk) if spec.missing == "pairwise" else _Complete.of_rows(x, wk, sums)
+    moments: Moments | PairwiseMoments = (
+        pairwise_comoments(x, wk) if spec.missing == "pairwise" else _complete_moments(x, wk)
     )
     return Summary(
         numeric=numeric_names,
@@ -776,17 +678,18 @@ def summarize(
 
     Notes
     -----
-    Each block of rows is centred by its own (weighted) means, with the corrected two-pass
-    formula :math:`C = \\sum_r w_r (x_r - m)(x_r - m)^T - W d d^T`, where :math:`d` is the
-    weighted mean of the centred block, and blocks are combined with the exact pairwise
-    update of :meth:`Summary.merge`. The covariance sent is :math:`C / (n - 1)` with
+    Each block of rows is centred by a shift :math:`s`, with the corrected two-pass formula
+    :math:`C = \\sum_r w_r (x_r - s)(x_r - s)^T - W d d^T`, where :math:`d` is the weighted
+    mean of the shifted block, and blocks are combined with the exact pairwise update of
+    :meth:`Summary.merge`. The covariance sent is :math:`C / (n - 1)` with
     :math:`n = \\sum w` (the frequency-weight convention the service uses).
 
     Verification: against numpy's covariance and pandas' pairwise correlation, against exact
     rational arithmetic on Longley shifted by 1e6 (tests/client).
 
-    Implementation: Chan, Golub & LeVeque (1983), corrected two-pass within a block and the
-    pairwise update across blocks.
+    Implementation: the service's own moments kernel (``knotwork_contract.comoments``,
+    ``pairwise_comoments`` and ``Moments.merge``): Chan, Golub & LeVeque (1983), corrected
+    two-pass within a block and the pairwise update across blocks.
     """
     spec = _make_spec(response, weights, categorical, missing, columns)
     return _finish(_summarize_unchecked(data, spec, names))
@@ -797,9 +700,4 @@ def merge_summaries(parts: Iterable[Summary]) -> Summary:
     level = list(parts)
     if not level:
         raise DataError("nothing to merge: no summaries given")
-    while len(level) > 1:
-        nxt = [a.merge(b) for a, b in zip(level[::2], level[1::2], strict=False)]
-        if len(level) % 2:
-            nxt.append(level[-1])
-        level = nxt
-    return level[0]
+    return merge_all(level)

@@ -24,25 +24,17 @@ from ._errors import (
 )
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
+from ._matrices import from_correlation, from_moments, merge_moments
 from ._notices import CAUTIONS, CODES
 from ._regression import Regression
 from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._repair import Repair, nearest_correlation
 from ._ridge import default_grid, ridge_analysis
+from ._rows import from_frame, from_table
 from ._significance import collinearity_tests
-from ._summary import (
-    INTERCEPT_NAME,
-    MISSING_POLICIES,
-    REPAIR_POLICIES,
-    Summary,
-    Term,
-    from_correlation,
-    from_frame,
-    from_moments,
-    from_table,
-    merge_moments,
-)
+from ._summary import INTERCEPT_NAME, Summary, Term
+from ._validation import MISSING_POLICIES, REPAIR_POLICIES
 
 __all__ = [
     "CAUTIONS",

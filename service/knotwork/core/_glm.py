@@ -17,6 +17,7 @@ import numpy as np
 import scipy.linalg
 from scipy.special import expit, xlogy
 
+from knotwork_contract import comoments, correlation_from_comoments
 from knotwork_contract import escape as esc
 
 from ._errors import (
@@ -29,16 +30,9 @@ from ._errors import (
 )
 from ._interrupt import checkpoint
 from ._notices import Notice, notice
-from ._summary import (
-    INTERCEPT_NAME,
-    Summary,
-    Term,
-    _check_terms,
-    _column_array,
-    _comoments,
-    _correlation_from_comoments,
-    from_table,
-)
+from ._rows import column_array, from_table
+from ._summary import INTERCEPT_NAME, Summary, Term
+from ._validation import check_terms
 
 #: The families, each with its link (the canonical one, or log for gamma and tweedie).
 FAMILIES = ("gaussian", "binomial", "poisson", "gamma", "tweedie")
@@ -294,7 +288,7 @@ def _family(family: object, var_power: object) -> _Family:
 
 def _vector(values: object, n: int, pointer: str, what: str, rows: np.ndarray) -> np.ndarray:
     """A finite float vector of length n, or an error naming the field and the row."""
-    a, complete = _column_array(values, pointer)
+    a, complete = column_array(values, pointer)
     if a.shape[0] != n:
         raise InputError.at(
             pointer,
@@ -813,8 +807,8 @@ def _terms(
     if terms is None:
         return ()
     if isinstance(terms, Mapping):
-        return _check_terms(terms, names)
-    return _check_terms({t.name: t.columns for t in terms}, names)
+        return check_terms(terms, names)
+    return check_terms({t.name: t.columns for t in terms}, names)
 
 
 def _columns(x: object, fit: GlmFit | None, p: int | None) -> list[np.ndarray]:
@@ -910,11 +904,11 @@ def glm_summary(
             raise InputError.at("/response", "the response cannot also be a predictor")
         columns.append(fit.working_response)
         pointers.append(f"/columns/{esc(response)}")
-    _, mean, com = _comoments(columns, w, keep)
+    _, mean, com = comoments(columns, w, keep, between_blocks=checkpoint)
     return Summary(
         names=tuple(names),
         n=float(fit.n),
-        correlation=_correlation_from_comoments(com),
+        correlation=correlation_from_comoments(com),
         response=response,
         means=mean,
         comoments=com,
@@ -1120,7 +1114,7 @@ def summarize_glm(
     labels_in = dict(categorical or {})
     numeric: dict[str, np.ndarray] = {}
     for name, values in columns.items():
-        numeric[name], _ = _column_array(values, f"/columns/{esc(name)}")
+        numeric[name], _ = column_array(values, f"/columns/{esc(name)}")
     labels = {name: np.asarray(list(v), dtype=object) for name, v in labels_in.items()}
     lengths = {name: a.shape[0] for name, a in numeric.items()}
     lengths.update({name: a.shape[0] for name, a in labels.items()})
