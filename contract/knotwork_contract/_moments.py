@@ -151,7 +151,8 @@ class PairwiseMoments(NamedTuple):
         matrix need not be positive semi-definite.
         """
         with np.errstate(divide="ignore", invalid="ignore"):
-            return self.comoments / np.sqrt(self.squares * self.squares.T)
+            corr: np.ndarray = self.comoments / np.sqrt(self.squares * self.squares.T)
+            return corr
 
 
 def _gram(
@@ -302,7 +303,7 @@ def correlation_from_comoments(com: np.ndarray) -> np.ndarray:
     """
     d = np.sqrt(np.diag(com))
     d = np.where(d > 0, d, 1.0)
-    r = com / np.outer(d, d)
+    r: np.ndarray = com / np.outer(d, d)
     r = (r + r.T) * 0.5
     np.clip(r, -1.0, 1.0, out=r)
     np.fill_diagonal(r, 1.0)

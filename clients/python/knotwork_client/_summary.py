@@ -124,13 +124,17 @@ class Summary:
         """Means of ``names`` (under pairwise deletion, over each column's observed rows)."""
         m = self._moments
         idx = self._index(self.names)
-        return m.mean[idx].copy() if isinstance(m, Moments) else m.mean[idx, idx].copy()
+        means: np.ndarray = (
+            m.mean[idx].copy() if isinstance(m, Moments) else m.mean[idx, idx].copy()
+        )
+        return means
 
     @property
     def comoments(self) -> np.ndarray:
         """Centred cross-products sum w (x_i - mean_i)(x_j - mean_j) over ``names``."""
         idx = self._index(self.names)
-        return self._moments.comoments[np.ix_(idx, idx)].copy()
+        com: np.ndarray = self._moments.comoments[np.ix_(idx, idx)].copy()
+        return com
 
     @property
     def covariance(self) -> np.ndarray:
@@ -138,8 +142,10 @@ class Summary:
         m = self._moments
         idx = self._index(self.names)
         if isinstance(m, Moments):
-            return m.comoments[np.ix_(idx, idx)] / (m.n - 1.0)
-        return m.comoments[np.ix_(idx, idx)] / (m.n[np.ix_(idx, idx)] - 1.0)
+            cov_all: np.ndarray = m.comoments[np.ix_(idx, idx)] / (m.n - 1.0)
+            return cov_all
+        cov: np.ndarray = m.comoments[np.ix_(idx, idx)] / (m.n[np.ix_(idx, idx)] - 1.0)
+        return cov
 
     @property
     def correlation(self) -> np.ndarray:
@@ -152,7 +158,7 @@ class Summary:
         idx = self._index(self.names)
         if isinstance(m, Moments):
             return correlation_from_comoments(m.comoments[np.ix_(idx, idx)])
-        r = m.correlation()[np.ix_(idx, idx)]
+        r: np.ndarray = m.correlation()[np.ix_(idx, idx)]
         np.fill_diagonal(r, 1.0)
         return r
 
@@ -605,7 +611,8 @@ def _one_blas_thread() -> contextlib.AbstractContextManager[Any]:
         from threadpoolctl import threadpool_limits
     except ImportError:  # pragma: no cover - threadpoolctl is a declared dependency
         return contextlib.nullcontext()
-    return threadpool_limits(limits=1, user_api="blas")
+    limiter: contextlib.AbstractContextManager[Any] = threadpool_limits(limits=1, user_api="blas")
+    return limiter
 
 
 def _summarize_unchecked(data: Any, spec: _Spec, names: Sequence[str] | None = None) -> Summary:

@@ -433,12 +433,13 @@ def _arrow_block(batch: Any, forced: frozenset[str]) -> Block:
 
 def _dataset_batches(dataset: Any, wanted: list[str] | None) -> Iterator[Any]:
     # Small read-ahead keeps memory bounded: the defaults buffer 16 batches of 4 files at once.
-    return dataset.to_batches(
+    batches: Iterator[Any] = dataset.to_batches(
         columns=wanted,
         batch_size=block_rows(len(wanted or dataset.schema.names)),
         batch_readahead=1,
         fragment_readahead=1,
     )
+    return batches
 
 
 # --- files ---------------------------------------------------------------------------------

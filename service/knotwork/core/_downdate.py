@@ -115,12 +115,13 @@ class DowndatedInverse:
         self._reset(self.idx[lk], a, self.mag[lk])
 
     def vif(self, cols: np.ndarray) -> np.ndarray:
-        return self.diag[self.loc[cols]]
+        vifs: np.ndarray = self.diag[self.loc[cols]]
+        return vifs
 
     def columns(self, cols: np.ndarray) -> np.ndarray:
         """Current columns of the inverse for global ``cols``, shape (q, len(cols)), local rows."""
         lc = self.loc[cols]
-        out = self.a0[lc].T
+        out: np.ndarray = self.a0[lc].T
         if self.s:
             top = self.ut[: self.s]
             out = out - top.T @ top[:, lc]

@@ -92,7 +92,8 @@ class _Eigen:
         return np.where(self.pos[:, None], w, 0.0)
 
     def vifs(self, ks: np.ndarray) -> np.ndarray:
-        return self.vv @ self.weights(ks)
+        vifs: np.ndarray = self.vv @ self.weights(ks)
+        return vifs
 
     def max_vif(self, k: float) -> float:
         return float(np.max(self.vifs(np.array([k]))))
@@ -101,7 +102,8 @@ class _Eigen:
         lam = self.l[:, None]
         with np.errstate(divide="ignore", invalid="ignore"):
             f = lam / (lam + ks[None, :])
-        return np.where(self.pos[:, None], f, 0.0).sum(axis=0)
+        total: np.ndarray = np.where(self.pos[:, None], f, 0.0).sum(axis=0)
+        return total
 
     def rss(self, ks: np.ndarray) -> np.ndarray:
         """Residual sum of squares as a share of SST: 1 - sum c_i^2 (l_i + 2k) / (l_i + k)^2."""

@@ -181,7 +181,7 @@ class Summary:
         assert self.means is not None and self.comoments is not None
         g = self.comoments + self.n * np.outer(self.means, self.means)
         d = np.sqrt(np.diag(g))
-        k = g / np.outer(d, d)
+        k: np.ndarray = g / np.outer(d, d)
         np.fill_diagonal(k, 1.0)
         return k
 

@@ -1378,7 +1378,10 @@ def _percentiles(values: np.ndarray, level: float) -> np.ndarray:
     """Percentile interval ends per column: the B alpha/2-th and B(1 - alpha/2)-th ordered
     values (Efron & Tibshirani 1993, ch. 13), numpy's ``inverted_cdf`` rule."""
     alpha = 1.0 - level
-    return np.quantile(values, [alpha / 2.0, 1.0 - alpha / 2.0], axis=0, method="inverted_cdf")
+    bounds: np.ndarray = np.quantile(
+        values, [alpha / 2.0, 1.0 - alpha / 2.0], axis=0, method="inverted_cdf"
+    )
+    return bounds
 
 
 class _Resampler:
@@ -1415,7 +1418,8 @@ class _Resampler:
     def sums(self, counts: np.ndarray) -> np.ndarray:
         """Rows of C Z for a block of counts (replicates x rows)."""
         if self.z is not None:
-            return counts @ self.z
+            sums: np.ndarray = counts @ self.z
+            return sums
         out = np.zeros((counts.shape[0], self.q))
         for r0 in range(0, self.n, self.rows_per_block):
             r1 = min(r0 + self.rows_per_block, self.n)
@@ -1439,7 +1443,7 @@ class _Resampler:
 
 def _correlations(com: np.ndarray) -> np.ndarray:
     d = np.sqrt(np.maximum(np.diagonal(com, axis1=1, axis2=2), np.finfo(float).tiny))
-    r = com / d[:, :, None] / d[:, None, :]
+    r: np.ndarray = com / d[:, :, None] / d[:, None, :]
     r = 0.5 * (r + np.swapaxes(r, 1, 2))
     idx = np.arange(r.shape[1])
     r[:, idx, idx] = 1.0

@@ -103,7 +103,8 @@ def check_symmetric(a: np.ndarray, pointer: str, scale: np.ndarray | None = None
             f"{pointer}/{i}/{j}",
             f"the matrix must be symmetric: entry [{i}][{j}] differs from [{j}][{i}]",
         )
-    return (a + a.T) * 0.5
+    symmetric: np.ndarray = (a + a.T) * 0.5
+    return symmetric
 
 
 def check_correlation_entries(r: np.ndarray, pointer: str) -> None:
