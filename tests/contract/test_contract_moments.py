@@ -12,19 +12,8 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
+import knotwork_contract as contract
 import knotwork_contract._moments as moments_module
-from knotwork_contract import (
-    Moments,
-    NotFinite,
-    PairwiseMoments,
-    comoments,
-    correlation_from_comoments,
-    indicator_columns,
-    indicator_name,
-    merge_all,
-    pairwise_comoments,
-    sorted_levels,
-)
 
 
 def _columns(x: np.ndarray) -> list[np.ndarray]:
@@ -49,7 +38,7 @@ def test_longley_shifted_by_a_million_keeps_its_digits(longley, optimistic) -> N
     # corrected two-pass kernel keeps about 12 (rounding of the shifted products).
     x = longley.to_numpy(dtype=float) + 1e6
     mean, com = _exact(x)
-    got = comoments(_columns(x), optimistic=optimistic)
+    got = contract.comoments(_columns(x), optimistic=optimistic)
     assert got.n == len(x)
     assert_allclose(got.mean, [float(m) for m in mean], rtol=1e-15)
     exact = np.array([[float(v) for v in row] for row in com])
@@ -62,7 +51,7 @@ def test_weights_equal_numpys_frequency_weighted_covariance(rng) -> None:
     # matrix; a different summation order, so agreement to rounding (1e-12 relative).
     x = rng.normal(size=(500, 4)) * [1.0, 1e3, 1e-3, 5.0] + [0.0, 1e5, 3.0, -7.0]
     w = rng.integers(0, 4, size=500).astype(float)
-    got = comoments(_columns(x), w)
+    got = contract.comoments(_columns(x), w)
     total = w.sum()
     assert got.n == total
     # Column 0's mean is near 0: compared on the scale of its spread (sd 1).
@@ -74,9 +63,9 @@ def test_weights_equal_numpys_frequency_weighted_covariance(rng) -> None:
 def test_keep_leaves_rows_out(rng) -> None:
     x = rng.normal(size=(300, 3)) + 10.0
     keep = rng.random(300) > 0.3
-    got = comoments(_columns(x), keep=keep)
+    got = contract.comoments(_columns(x), keep=keep)
     # Same kernel on the kept rows given directly: the same arithmetic, the same bits.
-    direct = comoments(_columns(x[keep]))
+    direct = contract.comoments(_columns(x[keep]))
     assert got.n == keep.sum()
     assert np.array_equal(got.comoments, direct.comoments)
     centred = x[keep] - x[keep].mean(axis=0)
@@ -88,8 +77,8 @@ def test_optimistic_reports_a_value_that_is_not_finite(rng, bad) -> None:
     x = rng.normal(size=(100, 3))
     x[77, 1] = bad
     calls = []
-    with pytest.raises(NotFinite):
-        comoments(
+    with pytest.raises(contract.NotFinite):
+        contract.comoments(
             _columns(x),
             optimistic=True,
             block_bytes=10 * 8 * 4,
@@ -102,11 +91,11 @@ def test_a_small_block_gives_the_same_moments_and_calls_back_per_block(rng) -> N
     x = rng.normal(size=(1000, 3)) * [1.0, 1e3, 1e-3] + [0.0, 1e6, 5.0]
     x = x[np.argsort(x[:, 1])]  # sorted: the worst order for a first-block shift
     calls = []
-    small = comoments(
+    small = contract.comoments(
         _columns(x), optimistic=True, block_bytes=50 * 8 * 4, between_blocks=lambda: calls.append(1)
     )
     assert len(calls) == 20
-    whole = comoments(_columns(x))
+    whole = contract.comoments(_columns(x))
     # The shift differs (first block's mean against the full mean): rounding only, on the
     # scale of each column's spread (column 0's mean is near 0 against an sd of 1).
     assert_allclose(small.mean, whole.mean, rtol=1e-15, atol=1e-14)
@@ -120,21 +109,21 @@ def test_merging_parts_equals_the_whole(rng) -> None:
     w = rng.gamma(2.0, size=700)
     cuts = [0, 1, 90, 90, 333, 600, 700]  # an empty part and a one-row part among them
     parts = [
-        comoments(_columns(x[a:b]), w[a:b]) if b > a else Moments.empty(4)
+        contract.comoments(_columns(x[a:b]), w[a:b]) if b > a else contract.Moments.empty(4)
         for a, b in itertools.pairwise(cuts)
     ]
-    whole = comoments(_columns(x), w)
-    for merged in (merge_all(parts), merge_all(parts[::-1])):
+    whole = contract.comoments(_columns(x), w)
+    for merged in (contract.merge_all(parts), contract.merge_all(parts[::-1])):
         assert merged.n == pytest.approx(whole.n, rel=1e-14)
         assert_allclose(merged.mean, whole.mean, rtol=1e-13, atol=1e-13)  # sds near 1
         assert_allclose(merged.comoments, whole.comoments, rtol=1e-11, atol=1e-9)
-    assert Moments.empty(4).merge(whole).n == whole.n
+    assert contract.Moments.empty(4).merge(whole).n == whole.n
 
 
 def test_correlation_from_comoments_equals_numpy_and_zeroes_a_constant_column(rng) -> None:
     x = rng.normal(size=(200, 3))
     x[:, 2] = 4.0
-    got = correlation_from_comoments(comoments(_columns(x)).comoments)
+    got = contract.correlation_from_comoments(contract.comoments(_columns(x)).comoments)
     # numpy.corrcoef on the two varying columns; rounding only.
     assert_allclose(got[:2, :2], np.corrcoef(x[:, :2], rowvar=False), rtol=1e-13)
     assert np.array_equal(got[2], [0.0, 0.0, 1.0])
@@ -146,7 +135,7 @@ def test_pairwise_correlations_equal_pandas(rng) -> None:
     # 1e4 times the spread either rounds at about (mean / sd) * eps, so 1e-10 is rounding.
     x = rng.normal(size=(400, 4)) @ rng.normal(size=(4, 4)) + [0.0, 1e4, 0.0, 5.0]
     x[rng.random(x.shape) < 0.15] = np.nan
-    got = pairwise_comoments(x)
+    got = contract.pairwise_comoments(x)
     r = got.correlation()
     np.fill_diagonal(r, 1.0)
     assert_allclose(r, pd.DataFrame(x).corr().to_numpy(), rtol=1e-10, atol=1e-11)
@@ -160,7 +149,7 @@ def test_weighted_pairwise_moments_are_each_pairs_complete_rows(rng) -> None:
     x = rng.normal(size=(300, 3)) + np.array([2.0, -1e3, 0.0])
     x[rng.random(x.shape) < 0.2] = np.nan
     w = rng.integers(0, 3, size=300).astype(float)
-    got = pairwise_comoments(x, w)
+    got = contract.pairwise_comoments(x, w)
     for i in range(3):
         for j in range(3):
             both = ~np.isnan(x[:, i]) & ~np.isnan(x[:, j])
@@ -179,31 +168,31 @@ def test_pairwise_blocks_merge_to_the_whole(rng) -> None:
     x = rng.normal(size=(240, 3)) + np.array([0.0, 50.0, -2.0])
     x[rng.random(x.shape) < 0.2] = np.nan
     x[100:160, 2] = np.nan
-    blocks = [pairwise_comoments(x[a : a + 60]) for a in range(0, 240, 60)]
-    merged = merge_all(blocks)
-    whole = pairwise_comoments(x)
+    blocks = [contract.pairwise_comoments(x[a : a + 60]) for a in range(0, 240, 60)]
+    merged = contract.merge_all(blocks)
+    whole = contract.pairwise_comoments(x)
     assert np.array_equal(merged.n, whole.n)
     assert_allclose(merged.mean, whole.mean, rtol=1e-13, atol=1e-13)  # sds 1
     assert_allclose(merged.comoments, whole.comoments, rtol=1e-11, atol=1e-11)
     assert_allclose(merged.squares, whole.squares, rtol=1e-11)
-    assert PairwiseMoments.empty(3).merge(whole).n.sum() == whole.n.sum()
+    assert contract.PairwiseMoments.empty(3).merge(whole).n.sum() == whole.n.sum()
 
 
 def test_indicator_columns_follow_dummy_coding_with_the_first_sorted_level_left_out() -> None:
     labels = ["shore", None, "hills", "plains", "hills", "lakes", None, "shore"]
-    levels = sorted_levels(labels)
+    levels = contract.sorted_levels(labels)
     assert levels == ("hills", "lakes", "plains", "shore")
     # pandas.get_dummies(drop_first=True) drops the first of the sorted categories too.
     dummies = pd.get_dummies(pd.Series(labels).dropna(), drop_first=True)
-    assert indicator_columns("region", levels) == tuple(
-        indicator_name("region", str(c)) for c in dummies.columns
+    assert contract.indicator_columns("region", levels) == tuple(
+        contract.indicator_name("region", str(c)) for c in dummies.columns
     )
-    assert indicator_name("region", "hills") == "region[hills]"
+    assert contract.indicator_name("region", "hills") == "region[hills]"
 
 
 def test_the_default_block_size_is_the_modules(monkeypatch, rng) -> None:
     x = rng.normal(size=(100, 2))
     calls = []
     monkeypatch.setattr(moments_module, "_BLOCK_BYTES", 10 * 8 * 3)
-    comoments(_columns(x), between_blocks=lambda: calls.append(1))
+    contract.comoments(_columns(x), between_blocks=lambda: calls.append(1))
     assert len(calls) == 10
