@@ -11,15 +11,9 @@ import asyncio
 import contextlib
 import io
 import json
-import os
-import socket
-import subprocess
-import sys
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
-import httpx
 import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
@@ -37,53 +31,18 @@ from knotwork_client import (
     summarize,
 )
 from knotwork_client._cli import main as screen
+from knotwork_harness.live_server import serve
 
 pytest.importorskip("knotwork.api", reason="the service is part of this repository")
 
 OLD_TOKEN, NEW_TOKEN = "loaf-token-one-0123456789", "loaf-token-two-0123456789"
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @contextlib.contextmanager
 def _service(tmp: Path, **env: str) -> Iterator[str]:
-    """Start ``python -m knotwork`` on a free loopback port; stop it (by its pid) after."""
-    port = _free_port()
-    log = (tmp / f"service-{port}.log").open("wb")
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "knotwork", "--host", "127.0.0.1", "--port", str(port)],
-        stdout=log,
-        stderr=subprocess.STDOUT,
-        env={**os.environ, "KNOTWORK_WORKERS": "1", **env},
-        cwd=tmp,
-    )
-    url = f"http://127.0.0.1:{port}"
-    try:
-        deadline = time.monotonic() + 60
-        while True:
-            if proc.poll() is not None:
-                raise RuntimeError((tmp / f"service-{port}.log").read_text()[-3000:])
-            try:
-                if httpx.get(f"{url}/readyz", timeout=1).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            if time.monotonic() > deadline:
-                raise RuntimeError("the service did not become ready within 60 s")
-            time.sleep(0.2)
-        yield url
-    finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait(timeout=5)
-        log.close()
+    """``python -m knotwork`` on a free loopback port, ready; stopped after (the harness's)."""
+    with serve(tmp, {"KNOTWORK_WORKERS": "1", **env}) as server:
+        yield server.url
 
 
 @pytest.fixture(scope="module")
