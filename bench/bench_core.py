@@ -19,7 +19,7 @@ import tracemalloc
 import warnings
 
 import numpy as np
-from _timing import best
+from _timing import best, table_header
 from threadpoolctl import threadpool_limits
 
 from knotwork.core import Options, assess, from_table
@@ -90,12 +90,10 @@ def main() -> None:
     ns = [10_000, 100_000] if args.quick else [10_000, 100_000, 1_000_000]
     ps = [10, 50] if args.quick else [10, 50, 200]
     warnings.simplefilter("ignore")
-    header = (
+    table_header(
         f"{'n':>9} {'p':>4} {'core ms':>9} {'XtX ms':>8} {'core/XtX':>9} "
         f"{'loop s':>9} {'loop/core':>10} {'loop/XtX':>9} {'peak/in':>8}  loop timing"
     )
-    print(header)
-    print("-" * len(header))
     with threadpool_limits(limits=1):
         for n in ns:
             for p in ps:

@@ -18,7 +18,7 @@ import argparse
 import warnings
 
 import numpy as np
-from _timing import best
+from _timing import best, table_header
 from scipy.special import expit
 from threadpoolctl import threadpool_limits
 
@@ -68,12 +68,10 @@ def main() -> None:
     n, p = (20_000, 50) if args.quick else (100_000, 50)
     warnings.simplefilter("ignore")
     x, binary, continuous = data(n, p)
-    header = (
+    table_header(
         f"{'family':>9} {'n':>8} {'p':>3} {'iters':>5} {'fit ms':>8} {'ours ms':>8} "
         f"{'sm fit ms':>10} {'ours/sm':>8} {'fit/sm':>7}  goal"
     )
-    print(header)
-    print("-" * len(header))
     with threadpool_limits(limits=1):
         for family, y in (("binomial", binary), ("gaussian", continuous)):
             fit = fit_glm(x, y, family=family)

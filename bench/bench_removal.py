@@ -28,7 +28,7 @@ import argparse
 
 import numpy as np
 import scipy.linalg
-from _timing import best
+from _timing import best, size_parser, sizes_and_repeat
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._removal import removal_sequence
@@ -95,14 +95,10 @@ def naive_estimate(m: np.ndarray, drops: list[int], samples: int = 24) -> float:
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="p in {100, 300} only, fewer repeats")
-    parser.add_argument("--threads", type=int, default=2, help="BLAS threads (default 2)")
-    parser.add_argument("--repeat", type=int, default=None, help="best of this many runs")
+    parser = size_parser(__doc__.splitlines()[0])
     parser.add_argument("--naive-max", type=int, default=300, help="largest p run naively")
     args = parser.parse_args()
-    sizes = (100, 300) if args.quick else (100, 300, 1000)
-    repeat = args.repeat or (3 if args.quick else 7)
+    sizes, repeat = sizes_and_repeat(args, quick_repeat=3, full_repeat=7)
 
     print(
         f"removal sequence, threshold {THRESHOLD:g}, BLAS threads {args.threads}, best of {repeat}"

@@ -22,7 +22,7 @@ from __future__ import annotations
 import argparse
 
 import numpy as np
-from _timing import best
+from _timing import best, size_parser, sizes_and_repeat
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._dependencies import Spectrum
@@ -51,14 +51,10 @@ def direct(r: np.ndarray, r_xy: np.ndarray, ks: np.ndarray) -> None:
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="p in {100, 300} only, fewer repeats")
-    parser.add_argument("--threads", type=int, default=2, help="BLAS threads (default 2)")
-    parser.add_argument("--repeat", type=int, default=None, help="best of this many runs")
+    parser = size_parser(__doc__.splitlines()[0])
     parser.add_argument("--direct-max", type=int, default=300, help="largest p solved per k")
     args = parser.parse_args()
-    sizes = (100, 300) if args.quick else (100, 300, 1000)
-    repeat = args.repeat or (3 if args.quick else 5)
+    sizes, repeat = sizes_and_repeat(args, quick_repeat=3, full_repeat=5)
 
     print(f"ridge trace, 100 values of k, BLAS threads {args.threads}, best of {repeat}")
     head = (

@@ -180,11 +180,9 @@ def main() -> None:
         f"best of {args.repeat}, page cache warm, BLAS on one thread"
     )
     floor = results["stream"]["seconds"]
-    header = (
+    table_header(
         f"{'':28} {'seconds':>8} {'cpu s':>7} {'MiB/s':>8} {'speed vs stream':>16} {'peak RSS':>9}"
     )
-    print(header)
-    print("-" * len(header))
     for mode, r in results.items():
         print(
             f"{LABELS[mode]:28} {r['seconds']:8.2f} {r['cpu']:7.2f} "

@@ -1233,9 +1233,9 @@ class TermSpread:
     gvif_interval
         (low, high): percentile interval of the GVIF over the usable replicates.
     gvif_scaled_interval
-        The same interval on the scale GVIF^(1/(2 df)), compared with sqrt(threshold).
+        The same interval for the scaled GVIF, compared with sqrt(threshold).
     share_above
-        Share of usable replicates in which GVIF^(1/(2 df)) exceeds sqrt(threshold).
+        Share of usable replicates in which the scaled GVIF exceeds sqrt(threshold).
     share_dropped
         Share of usable replicates in which the removal sequence drops the term.
     aliased
