@@ -24,8 +24,6 @@ least 100x faster than the naive loop.
 
 from __future__ import annotations
 
-import argparse
-
 import numpy as np
 import scipy.linalg
 from _timing import best, size_parser, sizes_and_repeat

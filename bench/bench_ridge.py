@@ -19,8 +19,6 @@ threadpoolctl. Expected shape (issue 3): the trace costs one decomposition plus 
 
 from __future__ import annotations
 
-import argparse
-
 import numpy as np
 from _timing import best, size_parser, sizes_and_repeat
 from threadpoolctl import threadpool_limits

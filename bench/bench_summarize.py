@@ -31,6 +31,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from _timing import table_header
+
 CHILD = r"""
 import json, resource, sys, time
 mode, path = sys.argv[1], sys.argv[2]
