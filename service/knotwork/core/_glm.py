@@ -32,7 +32,7 @@ from ._interrupt import checkpoint
 from ._notices import Notice, notice
 from ._rows import column_array, from_table
 from ._summary import INTERCEPT_NAME, Summary, Term
-from ._validation import check_terms
+from ._validation import check_terms, common_length
 
 #: The families, each with its link (the canonical one, or log for gamma and tweedie).
 FAMILIES = ("gaussian", "binomial", "poisson", "gamma", "tweedie")
@@ -1118,15 +1118,7 @@ def summarize_glm(
     labels = {name: np.asarray(list(v), dtype=object) for name, v in labels_in.items()}
     lengths = {name: a.shape[0] for name, a in numeric.items()}
     lengths.update({name: a.shape[0] for name, a in labels.items()})
-    expected = max(set(lengths.values()), key=list(lengths.values()).count)
-    for name, length in lengths.items():
-        if length != expected:
-            where = "categorical" if name in labels else "columns"
-            raise InputError.at(
-                f"/{where}/{esc(name)}",
-                f"has {length} values while the other columns have {expected}; "
-                "all columns must have the same length",
-            )
+    expected = common_length(lengths, labels)
     missing_rows = {f"/columns/{esc(k)}": np.isnan(a) for k, a in numeric.items()}
     missing_rows.update(
         {

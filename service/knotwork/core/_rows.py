@@ -33,6 +33,7 @@ from ._validation import (
     RESERVED_REASON,
     check_policy,
     check_symmetric,
+    common_length,
     validated_correlation,
 )
 
@@ -164,15 +165,7 @@ def _from_table(
     lengths.update({name: len(v) for name, v in labels.items()})
     if not lengths:
         raise TooFewDataError.at("/columns", "the table has no columns")
-    expected = max(set(lengths.values()), key=list(lengths.values()).count)
-    for name, length in lengths.items():
-        if length != expected:
-            where = "categorical" if name in labels else "columns"
-            raise InputError.at(
-                f"/{where}/{esc(name)}",
-                f"has {length} values while the other columns have {expected}; "
-                "all columns must have the same length",
-            )
+    expected = common_length(lengths, labels)
     n_rows = expected
 
     miss = {name: np.isnan(a) for name, a in arrays.items() if name in incomplete}

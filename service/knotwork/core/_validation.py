@@ -7,7 +7,7 @@ its JSON pointer, or returns the value in the form the summaries use.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 
 import numpy as np
 
@@ -227,3 +227,17 @@ def check_terms(
             used[c] = tname
         out.append(Term(tname, tuple(cols)))
     return tuple(out)
+
+
+def common_length(lengths: Mapping[str, int], categorical: Collection[str]) -> int:
+    """The length most columns have; an error naming the first column of another length."""
+    expected = max(set(lengths.values()), key=list(lengths.values()).count)
+    for name, length in lengths.items():
+        if length != expected:
+            where = "categorical" if name in categorical else "columns"
+            raise InputError.at(
+                f"/{where}/{esc(name)}",
+                f"has {length} values while the other columns have {expected}; "
+                "all columns must have the same length",
+            )
+    return expected
