@@ -12,10 +12,11 @@ Variables (defaults in brackets):
 ``KNOTWORK_TOKENS``            comma-separated bearer tokens, added to those of the file [none]
 ``KNOTWORK_ALLOW_OPEN``        ``true`` permits running without tokens on a non-loopback
                                address [false]
-``KNOTWORK_MAX_BODY_BYTES``    largest request body, in bytes [67108864 = 64 MiB]
+``KNOTWORK_MAX_BODY_BYTES``    largest request body, in bytes [100663296 = 96 MiB: a p = 2,000
+                               correlation matrix in JSON at full precision is about 84 MB]
 ``KNOTWORK_MAX_CELLS``         largest input, in numbers: rows x columns of a table, p x p of a
                                matrix [10000000]
-``KNOTWORK_MAX_COLUMNS``       most predictors (columns, or names of a matrix) [1000]
+``KNOTWORK_MAX_COLUMNS``       most predictors (columns, or names of a matrix) [2000]
 ``KNOTWORK_MAX_BATCH_ITEMS``   most items in one batch request [500]
 ``KNOTWORK_WORKERS``           server processes [1]
 ``KNOTWORK_CONCURRENCY``       assessments computed at once in each process [usable cores
@@ -38,9 +39,9 @@ from pathlib import Path
 __all__ = ["Settings", "SettingsError", "usable_cores"]
 
 #: Input limits by default, stated once: the settings and the codecs' limits use these.
-DEFAULT_MAX_BODY_BYTES = 64 * 1024 * 1024
+DEFAULT_MAX_BODY_BYTES = 96 * 1024 * 1024
 DEFAULT_MAX_CELLS = 10_000_000
-DEFAULT_MAX_COLUMNS = 1000
+DEFAULT_MAX_COLUMNS = 2000
 DEFAULT_MAX_BATCH_ITEMS = 500
 
 #: Shortest bearer token accepted: shorter ones are guessable.

@@ -16,9 +16,9 @@ def test_defaults_are_safe() -> None:
     settings = Settings.from_env({})
     assert settings.tokens == ()
     assert settings.open and not settings.allow_open
-    assert settings.max_body_bytes == 64 * 1024 * 1024
+    assert settings.max_body_bytes == 96 * 1024 * 1024
     assert settings.max_cells == 10_000_000
-    assert settings.max_columns == 1000
+    assert settings.max_columns == 2000
     assert settings.max_batch_items == 500
     assert settings.workers == 1
     assert settings.concurrency == usable_cores()
