@@ -116,7 +116,9 @@ def from_table(
     return _from_table(columns, categorical, response, weights, missing, repair, optimistic=False)
 
 
-def _from_table(
+# One pass of checks in the order a caller needs their errors (names, lengths, missing values
+# by policy, categorical levels, weights), each a branch; split, they would re-walk the columns.
+def _from_table(  # noqa: C901
     columns: Mapping[str, object],
     categorical: Mapping[str, Sequence[str | None]] | None,
     response: str | None,
