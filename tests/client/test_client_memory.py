@@ -73,6 +73,23 @@ def tall_parquet(tmp_path_factory) -> tuple[Path, np.ndarray, np.ndarray]:
     return path, whole.mean(axis=0), np.cov(whole, rowvar=False)
 
 
+def run_child(code: str, path: Path, tmp_path: Path) -> subprocess.CompletedProcess[str]:
+    """Run ``code`` in a child under the budget, with the plain allocation described above."""
+    env = {
+        **os.environ,
+        "ARROW_DEFAULT_MEMORY_POOL": "system",
+        "MALLOC_ARENA_MAX": "1",
+        "OPENBLAS_NUM_THREADS": "1",
+    }
+    return subprocess.run(
+        [sys.executable, "-c", code, str(path), str(tmp_path / "warm.parquet"), str(BUDGET_MIB)],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=300,
+    )
+
+
 @pytest.mark.slow
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="uses /proc and RLIMIT_AS")
 def test_file_larger_than_the_memory_limit_is_summarized(tall_parquet, tmp_path):
@@ -81,19 +98,7 @@ def test_file_larger_than_the_memory_limit_is_summarized(tall_parquet, tmp_path)
     assert values_bytes > 3 * BUDGET_MIB * 2**20
     meta = pq.ParquetFile(path).metadata
     assert meta.row_group(0).num_rows * COLS * 8 > BUDGET_MIB * 2**20  # one row group > limit
-    env = {
-        **os.environ,
-        "ARROW_DEFAULT_MEMORY_POOL": "system",
-        "MALLOC_ARENA_MAX": "1",
-        "OPENBLAS_NUM_THREADS": "1",
-    }
-    done = subprocess.run(
-        [sys.executable, "-c", CHILD, str(path), str(tmp_path / "warm.parquet"), str(BUDGET_MIB)],
-        capture_output=True,
-        text=True,
-        env=env,
-        timeout=300,
-    )
+    done = run_child(CHILD, path, tmp_path)
     assert done.returncode == 0, done.stderr[-2000:]
     import json
 
@@ -113,13 +118,6 @@ def test_the_limit_is_real(tall_parquet, tmp_path):
         "pq.ParquetFile(sys.argv[1], pre_buffer=False).read(use_threads=False); "
         "raise SystemExit(0)",
     )
-    env = {**os.environ, "ARROW_DEFAULT_MEMORY_POOL": "system", "MALLOC_ARENA_MAX": "1"}
-    done = subprocess.run(
-        [sys.executable, "-c", greedy, str(path), str(tmp_path / "warm.parquet"), str(BUDGET_MIB)],
-        capture_output=True,
-        text=True,
-        env=env,
-        timeout=300,
-    )
+    done = run_child(greedy, path, tmp_path)
     assert done.returncode != 0
     assert "MemoryError" in done.stderr or "memory" in done.stderr.lower()

@@ -8,6 +8,7 @@ import msgspec
 import numpy as np
 import pandas as pd
 import pytest
+from answer_fields import VARIABLE_FIELDS
 
 from knotwork_client import Assessment, ProblemDetails
 
@@ -150,14 +151,7 @@ def test_variables_frame(assessment):
     frame = assessment.to_frame()
     assert list(frame.index) == ["oven_hours", "flour_kg", "staff_shifts"]
     assert frame.index.name == "name"
-    assert list(frame.columns) == [
-        "vif",
-        "tolerance",
-        "r_squared",
-        "se_inflation",
-        "above_threshold",
-        "aliased",
-    ]
+    assert tuple(frame.columns) == VARIABLE_FIELDS
     assert frame.loc["oven_hours", "vif"] == 12.5
     assert np.isnan(frame.loc["flour_kg", "vif"])  # aliased: not finite, shown as NaN
     assert frame["aliased"].tolist() == [False, True, False]

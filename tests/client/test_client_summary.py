@@ -11,6 +11,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
+from exact_rational import exact_comoments, exact_vifs
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from kc_support import REGIONS, bakery_frame
@@ -152,34 +153,8 @@ def test_pairwise_without_gaps_sends_moments(bakery):
 
 
 def _exact_comoments(rows: list[list[float]]) -> list[list[Fraction]]:
-    values = [[Fraction(v) for v in row] for row in rows]
-    n = len(values)
-    q = len(values[0])
-    means = [sum(r[j] for r in values) / n for j in range(q)]
-    return [
-        [sum((r[i] - means[i]) * (r[j] - means[j]) for r in values) for j in range(q)]
-        for i in range(q)
-    ]
-
-
-def _exact_vifs(com: list[list[Fraction]]) -> list[float]:
-    """VIFs as the diagonal of the inverse correlation matrix, in exact rational arithmetic.
-
-    The inverse is formed on the co-moment matrix (Gauss-Jordan on Fractions); scaling by the
-    variances cannot change the VIF: VIF_j = [C^-1]_jj * C_jj.
-    """
-    q = len(com)
-    a = [row[:] + [Fraction(int(i == j)) for j in range(q)] for i, row in enumerate(com)]
-    for c in range(q):
-        pivot = next(r for r in range(c, q) if a[r][c] != 0)
-        a[c], a[pivot] = a[pivot], a[c]
-        inv = 1 / a[c][c]
-        a[c] = [v * inv for v in a[c]]
-        for r in range(q):
-            if r != c and a[r][c] != 0:
-                f = a[r][c]
-                a[r] = [x - f * y for x, y in zip(a[r], a[c], strict=True)]
-    return [float(a[j][q + j] * com[j][j]) for j in range(q)]
+    """Exact co-moments of the doubles themselves (each converted to Fraction without rounding)."""
+    return exact_comoments([[Fraction(v) for v in row] for row in rows])
 
 
 @pytest.fixture(scope="module")
@@ -211,7 +186,7 @@ def test_longley_shifted_merge_matches_exact_arithmetic(longley_shifted):
 
 def test_longley_shifted_vifs_match_exact_and_published(longley_shifted):
     rows = longley_shifted.to_numpy().tolist()
-    exact_vif = _exact_vifs(_exact_comoments(rows))
+    exact_vif = [float(v) for v in exact_vifs(_exact_comoments(rows))]
     s = merge_summaries(summarize(longley_shifted.iloc[i : i + 4]) for i in range(0, 16, 4))
     vif = np.diag(np.linalg.inv(s.correlation))
     # Reference 1: exact rational arithmetic on the shifted data.

@@ -6,9 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from nist_longley import NIST_B, standardize, summary
+from nist_longley import NIST_B, longley_rows, original_units, shipped_rows, standardize, summary
 from numpy.testing import assert_allclose
-from sklearn.datasets import load_diabetes
 from sklearn.decomposition import PCA
 from sklearn.linear_model import LinearRegression
 
@@ -20,17 +19,7 @@ from knotwork.demo import garden_centres
 
 @pytest.fixture(scope="module")
 def longley():
-    data = sm.datasets.longley.load_pandas()
-    return data.exog.to_numpy(dtype=float), data.endog.to_numpy(dtype=float), list(data.exog)
-
-
-def _dataset(name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Predictors and response of a dataset shipped with statsmodels or scikit-learn."""
-    if name == "diabetes":
-        x, y = load_diabetes(return_X_y=True, scaled=False)  # scikit-learn's bundled data
-        return x, y
-    data = getattr(sm.datasets, name).load_pandas()  # statsmodels' bundled data
-    return data.exog.to_numpy(dtype=float), data.endog.to_numpy(dtype=float)
+    return longley_rows()
 
 
 def _pcr_vifs_by_size(x: np.ndarray) -> list[np.ndarray]:
@@ -82,7 +71,7 @@ def test_default_rule_is_the_vif_threshold(longley):
 @pytest.mark.parametrize("threshold", [5.0, 10.0, 50.0])
 @pytest.mark.parametrize("dataset", ["longley", "diabetes", "copper"])
 def test_pcr_vifs_and_kept_set_equal_scikit_learn_pca(dataset, threshold):
-    x, y = _dataset(dataset)
+    x, y = shipped_rows(dataset)
     p = x.shape[1]
     r, _ = summary(x, y)
     result = principal_components(r, [f"x{j}" for j in range(p)], threshold=threshold)
@@ -111,21 +100,9 @@ def test_pcr_vifs_and_kept_set_equal_scikit_learn_pca(dataset, threshold):
 )
 def test_keeping_every_component_is_the_nist_ols_fit(longley, rule, limit, threshold):
     x, y, names = longley
-    r, r_xy = summary(x, y)
+    r, _ = summary(x, y)
     result = principal_components(
-        r,
-        names,
-        regression=Regression(
-            len(y),
-            r_xy=r_xy,
-            sds=x.std(axis=0, ddof=1),
-            response_sd=float(y.std(ddof=1)),
-            means=x.mean(axis=0),
-            response_mean=float(y.mean()),
-        ),
-        rule=rule,
-        limit=limit,
-        threshold=threshold,
+        r, names, regression=original_units(x, y), rule=rule, limit=limit, threshold=threshold
     )
     assert result.kept == tuple(range(6))
     assert_allclose(result.original_coefficients, NIST_B[1:], rtol=1e-7)  # NIST StRD certified
@@ -145,11 +122,8 @@ def test_keeping_every_component_is_the_nist_ols_fit(longley, rule, limit, thres
     ("rule", "limit"), [("vif_threshold", None), ("condition_index", None), ("cumulative", 0.9)]
 )
 @pytest.mark.parametrize("dataset", ["diabetes", "longley"])
-def test_regression_on_kept_components_equals_scikit_learn(dataset, rule, limit, longley):
-    if dataset == "diabetes":
-        x, y = load_diabetes(return_X_y=True, scaled=False)  # scikit-learn's bundled data
-    else:
-        x, y, _ = longley
+def test_regression_on_kept_components_equals_scikit_learn(dataset, rule, limit):
+    x, y = shipped_rows(dataset)
     n, p = x.shape
     r, r_xy = summary(x, y)
     result = principal_components(

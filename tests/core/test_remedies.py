@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import statsmodels.api as sm
+from nist_longley import longley_rows, summary
 
 from knotwork.core import Regression
 from knotwork.core._components import principal_components
@@ -15,34 +16,31 @@ from knotwork.core._ridge import VIF_THRESHOLD, ridge_analysis
 
 @pytest.fixture(scope="module")
 def longley():
-    data = sm.datasets.longley.load_pandas()
-    x = data.exog.to_numpy(dtype=float)
-    y = data.endog.to_numpy(dtype=float)
-    c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
-    return x, y, list(data.exog.columns), c[:-1, :-1], c[:-1, -1]
+    x, y, names = longley_rows()
+    return x, y, names, *summary(x, y)
 
 
 def remedies(r, names, n, r_xy, threshold=10.0):
+    """Every remedy at the threshold, compared side by side: (comparison, removal, ridge, comps)."""
     removal = removal_sequence(r, names, threshold=threshold, r_xy=r_xy)
     regression = Regression(n, r_xy=r_xy)
     ridge = ridge_analysis(r, names, regression=regression, threshold=threshold)
     comps = principal_components(r, names, regression=regression)
-    return removal, ridge, comps
-
-
-def test_longley_rows_against_statsmodels(longley):
-    x, y, names, r, r_xy = longley
-    n = len(y)
-    removal, ridge, comps = remedies(r, names, n, r_xy)
     result = compare_remedies(
         r,
         names,
-        regression=Regression(n, r_xy=r_xy),
-        threshold=10,
+        regression=regression,
+        threshold=threshold,
         removal=removal,
         ridge=ridge,
         components=comps,
     )
+    return result, removal, ridge, comps
+
+
+def test_longley_rows_against_statsmodels(longley):
+    x, y, names, r, r_xy = longley
+    result, removal, ridge, comps = remedies(r, names, len(y), r_xy)
     rows = {row.remedy: row for row in result.rows}
     assert [row.remedy for row in result.rows] == ["none", "removal", "ridge", "components"]
     full = sm.OLS(y, sm.add_constant(x)).fit()
@@ -77,16 +75,7 @@ def test_longley_rows_against_statsmodels(longley):
 
 def test_without_response_or_remedies(longley):
     _, y, names, r, _ = longley
-    removal, ridge, comps = remedies(r, names, len(y), None)
-    result = compare_remedies(
-        r,
-        names,
-        regression=Regression(len(y)),
-        threshold=10,
-        removal=removal,
-        ridge=ridge,
-        components=comps,
-    )
+    result, *_ = remedies(r, names, len(y), None)
     assert all(row.r_squared is None and row.r_squared_lost is None for row in result.rows)
     assert result.rows[2].remedy == "ridge"  # the VIF-threshold k needs no response
     bare = compare_remedies(
@@ -107,19 +96,8 @@ def test_exact_dependency_full_row(rng):
     x = rng.standard_normal((n, 3))
     x = np.column_stack([x, x[:, 0] - x[:, 2]])
     y = x[:, 1] + rng.standard_normal(n)
-    c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
-    r, r_xy = c[:-1, :-1], c[:-1, -1]
-    names = list("abcd")
-    removal, ridge, comps = remedies(r, names, n, r_xy, threshold=5)
-    result = compare_remedies(
-        r,
-        names,
-        regression=Regression(n, r_xy=r_xy),
-        threshold=5,
-        removal=removal,
-        ridge=ridge,
-        components=comps,
-    )
+    r, r_xy = summary(x, y)
+    result, *_ = remedies(r, list("abcd"), n, r_xy, threshold=5)
     rows = {row.remedy: row for row in result.rows}
     assert rows["none"].max_vif is None and rows["none"].parameters == 3
     fit = sm.OLS(y, sm.add_constant(x[:, :3])).fit()

@@ -9,6 +9,7 @@ import pytest
 import statsmodels.api as sm
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from nist_longley import longley_rows, summary
 from numpy.testing import assert_allclose
 from sklearn.datasets import load_diabetes
 from statsmodels.stats.outliers_influence import variance_inflation_factor
@@ -129,11 +130,8 @@ def check_against_scratch(m, threshold, **kw):
 
 @pytest.fixture(scope="module")
 def longley_data():
-    data = sm.datasets.longley.load_pandas()
-    x = data.exog.to_numpy(dtype=float)
-    y = data.endog.to_numpy(dtype=float)
-    c = np.corrcoef(np.column_stack([x, y]), rowvar=False)
-    return x, y, list(data.exog.columns), c[:-1, :-1], c[:-1, -1]
+    x, y, names = longley_rows()
+    return x, y, names, *summary(x, y)
 
 
 def test_longley_threshold_10_matches_check_values(longley_data):

@@ -5,9 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import statsmodels.api as sm
-from nist_longley import NIST_B, standardize, summary
+from nist_longley import NIST_B, longley_rows, original_units, shipped_rows, standardize, summary
 from numpy.testing import assert_allclose
-from sklearn.datasets import load_diabetes
 from sklearn.linear_model import Ridge as SkRidge
 
 from knotwork.core import Regression
@@ -24,10 +23,7 @@ from knotwork.core._ridge import (
 
 @pytest.fixture(scope="module")
 def longley():
-    data = sm.datasets.longley.load_pandas()
-    x = data.exog.to_numpy(dtype=float)
-    y = data.endog.to_numpy(dtype=float)
-    return x, y, list(data.exog.columns)
+    return longley_rows()
 
 
 def choices(result):
@@ -54,11 +50,8 @@ def test_longley_published_choices_and_ridge_vifs(longley):
 
 
 @pytest.mark.parametrize("dataset", ["diabetes", "longley"])
-def test_coefficients_equal_scikit_learn_ridge_on_standardized_data(dataset, longley):
-    if dataset == "diabetes":
-        x, y = load_diabetes(return_X_y=True, scaled=False)  # scikit-learn's bundled data
-    else:
-        x, y, _ = longley
+def test_coefficients_equal_scikit_learn_ridge_on_standardized_data(dataset):
+    x, y = shipped_rows(dataset)
     n, p = x.shape
     r, r_xy = summary(x, y)
     ks = [0.0, 1e-4, 0.003, 0.05, 0.7]
@@ -77,21 +70,8 @@ def test_coefficients_equal_scikit_learn_ridge_on_standardized_data(dataset, lon
 
 def test_original_scale_at_k_zero_is_the_nist_fit(longley):
     x, y, names = longley
-    r, r_xy = summary(x, y)
-    result = ridge_analysis(
-        r,
-        names,
-        regression=Regression(
-            len(y),
-            r_xy=r_xy,
-            sds=x.std(axis=0, ddof=1),
-            response_sd=float(y.std(ddof=1)),
-            means=x.mean(axis=0),
-            response_mean=float(y.mean()),
-        ),
-        threshold=10,
-        grid=[0.0],
-    )
+    r, _ = summary(x, y)
+    result = ridge_analysis(r, names, regression=original_units(x, y), threshold=10, grid=[0.0])
     point = result.trace[0]
     assert_allclose(point.original_coefficients, NIST_B[1:], rtol=1e-7)  # NIST StRD certified
     assert point.original_intercept == pytest.approx(NIST_B[0], rel=1e-7)

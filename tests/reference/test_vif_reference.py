@@ -7,6 +7,7 @@ from fractions import Fraction
 import pandas as pd
 import pytest
 import statsmodels.api as sm
+from exact_rational import exact_comoments, exact_vifs
 from numpy.testing import assert_allclose
 from statsmodels.stats.outliers_influence import variance_inflation_factor
 
@@ -93,30 +94,9 @@ def test_longley_widely_cited_two_decimals() -> None:
 
 
 def _exact_vifs(frame: pd.DataFrame) -> list[Fraction]:
-    """VIF_j = C_jj [C^-1]_jj on the centred cross-products, in exact rational arithmetic."""
-    cols = [[Fraction(repr(float(v))) for v in frame[c]] for c in frame.columns]
-    n = len(cols[0])
-    means = [sum(c) / n for c in cols]
-    p = len(cols)
-    c = [
-        [
-            sum((a - means[i]) * (b - means[j]) for a, b in zip(cols[i], cols[j], strict=True))
-            for j in range(p)
-        ]
-        for i in range(p)
-    ]
-    # Gauss-Jordan inversion with exact fractions.
-    aug = [row[:] + [Fraction(int(i == j)) for j in range(p)] for i, row in enumerate(c)]
-    for k in range(p):
-        piv = next(r for r in range(k, p) if aug[r][k] != 0)
-        aug[k], aug[piv] = aug[piv], aug[k]
-        inv_p = 1 / aug[k][k]
-        aug[k] = [v * inv_p for v in aug[k]]
-        for r in range(p):
-            if r != k and aug[r][k] != 0:
-                f = aug[r][k]
-                aug[r] = [a - f * b for a, b in zip(aug[r], aug[k], strict=True)]
-    return [c[j][j] * aug[j][p + j] for j in range(p)]
+    """VIFs of the published decimals taken as exact rationals (repr gives the decimal)."""
+    rows = [[Fraction(repr(float(v))) for v in row] for row in frame.itertuples(index=False)]
+    return exact_vifs(exact_comoments(rows))
 
 
 def test_longley_vif_against_exact_rational_arithmetic() -> None:

@@ -1,0 +1,11 @@
+"""Field names of the answer that are API, pinned once for every layer.
+
+Written out by hand, not read from the contract's classes, so that a renamed field fails the
+tests of the service's JSON and of the client's tables alike.
+"""
+
+from __future__ import annotations
+
+# One variable's fields after its name, in order (docs/contract.md, Sections: `variables[]`;
+# docs/contract.md, Python client: the columns of `Assessment.to_frame()`).
+VARIABLE_FIELDS = ("vif", "tolerance", "r_squared", "se_inflation", "above_threshold", "aliased")
