@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.linalg
-from _timing import best, size_parser, sizes_and_repeat
+from _timing import best, size_parser, sizes_and_repeat, table_header
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._removal import removal_sequence
@@ -101,13 +101,11 @@ def main() -> None:
     print(
         f"removal sequence, threshold {THRESHOLD:g}, BLAS threads {args.threads}, best of {repeat}"
     )
-    head = (
+    table_header(
         f"{'p':>5} {'drops':>5} {'np.inv':>8} {'chol-inv':>8} {'sequence':>9} {'+tables':>9} "
         f"{'full-dd':>8} {'naive':>10} | {'seq/inv':>7} {'seq/chol':>8} {'naive/seq':>9} "
         f"{'full/seq':>8}"
     )
-    print(head)
-    print("-" * len(head))
     with threadpool_limits(limits=args.threads):
         for p in sizes:
             m = design(p)

@@ -20,7 +20,7 @@ threadpoolctl. Expected shape (issue 3): the trace costs one decomposition plus 
 from __future__ import annotations
 
 import numpy as np
-from _timing import best, size_parser, sizes_and_repeat
+from _timing import best, size_parser, sizes_and_repeat, table_header
 from threadpoolctl import threadpool_limits
 
 from knotwork.core._dependencies import Spectrum
@@ -55,12 +55,10 @@ def main() -> None:
     sizes, repeat = sizes_and_repeat(args, quick_repeat=3, full_repeat=5)
 
     print(f"ridge trace, 100 values of k, BLAS threads {args.threads}, best of {repeat}")
-    head = (
+    table_header(
         f"{'p':>5} {'eigh':>8} {'trace':>8} {'per k':>8} {'direct':>10} {'per k':>8} | "
         f"{'trace/eigh':>10} {'direct/(eigh+trace)':>19} {'direct/trace per k':>18}"
     )
-    print(head)
-    print("-" * len(head))
     with threadpool_limits(limits=args.threads):
         for p in sizes:
             r, r_xy, n = problem(p)

@@ -304,37 +304,25 @@ start_container() {
     echo "container ${cid:0:12} on 127.0.0.1:$port (workers $workers)"
 }
 
-wait_healthy() {
-    local i code
+# wait_for ROUTE: poll the route until it answers 200 (60 s at most); fail, with the
+# container's last log lines, if it does not or the container stops first. /healthz answers as
+# soon as the server listens; /readyz once each worker has warmed up, as a load balancer waits.
+wait_for() {
+    local route=$1 i code=""
     for i in $(seq 1 120); do
-        code=$(curl -s -o /dev/null -w '%{http_code}' --max-time 2 "http://127.0.0.1:$port/healthz" || true)
+        code=$(curl -s -o /dev/null -w '%{http_code}' --max-time 2 "http://127.0.0.1:$port$route" || true)
         if [ "$code" = 200 ]; then
-            echo "healthy after $i tries"
+            echo "$route answered 200 after $i tries"
             return
         fi
         if [ "$(podman inspect --format '{{.State.Running}}' "$cid")" != true ]; then
             podman logs "$cid" 2>&1 | tail -30
-            fail "container exited before it was healthy"
+            fail "container exited before $route answered 200"
         fi
         sleep 0.5
     done
     podman logs "$cid" 2>&1 | tail -30
-    fail "no healthy answer from /healthz within 60 s"
-}
-
-wait_ready() {
-    local i code
-    # Each worker warms up before it reports ready; the load balancer would wait for this too.
-    for i in $(seq 1 120); do
-        code=$(curl -s -o /dev/null -w '%{http_code}' --max-time 2 "http://127.0.0.1:$port/readyz" || true)
-        if [ "$code" = 200 ]; then
-            echo "ready after $i tries"
-            return
-        fi
-        sleep 0.5
-    done
-    podman logs "$cid" 2>&1 | tail -30
-    fail "/readyz did not answer 200 within 60 s (last: $code)"
+    fail "$route did not answer 200 within 60 s (last: $code)"
 }
 
 # request NAME EXPECTED_STATUS EXPECTED_TYPE_PREFIX curl-args...
@@ -452,8 +440,8 @@ step "local base image" make_base
 step "build image" build_image
 step "image facts" image_facts
 step "start container" start_container
-step "wait for /healthz" wait_healthy
-step "wait for /readyz" wait_ready
+step "wait for /healthz" wait_for /healthz
+step "wait for /readyz" wait_for /readyz
 step "requests" check_service
 step "inside the container" check_inside
 step "stop by id" stop_container
