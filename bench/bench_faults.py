@@ -24,7 +24,6 @@ import argparse
 import json
 import signal
 import tempfile
-import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
@@ -34,6 +33,7 @@ import httpx
 from knotwork_harness.batch_models import correlation_body, run_screen, tally_reports, write_models
 from knotwork_harness.fault_proxy import FAULTS, FaultPlan, FaultProxy
 from knotwork_harness.live_server import serve
+from knotwork_harness.together import post_together
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -86,24 +86,10 @@ def sigterm_mid_load(tmp: Path, requests: int = 10) -> dict:
             ).json()
             for b in bodies
         ]
-        results: list[object] = [None] * requests
-        start = threading.Barrier(requests + 1)
-
-        def send(index: int) -> None:
-            start.wait(30)
-            try:
-                results[index] = httpx.post(
-                    server.url + "/v1/assess/batch",
-                    content=bodies[index],
-                    headers=headers,
-                    timeout=120,
-                )
-            except httpx.HTTPError as exc:
-                results[index] = exc
-
         with ThreadPoolExecutor(requests) as pool:
-            futures = [pool.submit(send, i) for i in range(requests)]
-            start.wait(30)
+            results, futures = post_together(
+                pool, server.url + "/v1/assess/batch", bodies, headers, timeout=120, wait=30
+            )
             deadline = time.monotonic() + 60
             while httpx.get(server.url + "/readyz", timeout=10).json()["in_flight"] < 4:
                 if time.monotonic() > deadline:

@@ -41,6 +41,7 @@ from knotwork_harness.batch_models import (
 from knotwork_harness.fault_proxy import FaultPlan, FaultProxy
 from knotwork_harness.live_server import Server, serve
 from knotwork_harness.processes import time_limit
+from knotwork_harness.together import post_together
 
 GRACEFUL = (0, -signal.SIGTERM)
 AUTH_TOKEN = "faults-token-0123456789abcdef"
@@ -121,21 +122,6 @@ def test_sigterm_mid_load_finishes_every_admitted_request(tmp_path: Path) -> Non
     headers = {"Content-Type": "application/json", "Authorization": f"Bearer {AUTH_TOKEN}"}
     with serve(tmp_path, env) as server:
         expected = _answers(server.url, bodies)
-        results: list[object] = [None] * len(bodies)
-        start = threading.Barrier(len(bodies) + 1)
-
-        def send(index: int) -> None:
-            start.wait(10)
-            try:
-                results[index] = httpx.post(
-                    server.url + "/v1/assess/batch",
-                    content=bodies[index],
-                    headers=headers,
-                    timeout=60,
-                )
-            except httpx.HTTPError as exc:
-                results[index] = exc
-
         late: list[object] = []
         stop_late = threading.Event()
 
@@ -161,8 +147,9 @@ def test_sigterm_mid_load_finishes_every_admitted_request(tmp_path: Path) -> Non
                 time.sleep(0.02)
 
         with ThreadPoolExecutor(len(bodies) + 1) as pool:
-            futures = [pool.submit(send, i) for i in range(len(bodies))]
-            start.wait(10)
+            results, futures = post_together(
+                pool, server.url + "/v1/assess/batch", bodies, headers, timeout=60, wait=10
+            )
             deadline = time.monotonic() + 30
             # Both slots busy and requests waiting in the queue: then stop the server.
             while httpx.get(server.url + "/readyz", timeout=5).json()["in_flight"] < 4:
