@@ -17,18 +17,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from knotwork_contract import (
-    Moments,
-    NotFinite,
-    PairwiseMoments,
-    comoments,
-    correlation_from_comoments,
-    indicator_columns,
-    indicator_name,
-    merge_all,
-    pairwise_comoments,
-    sorted_levels,
-)
+import knotwork_contract as contract
 
 from ._exceptions import DataError, MissingValuesError
 from ._tables import Block, iter_blocks
@@ -78,7 +67,7 @@ class Summary:
     rows_read: int
     rows_complete: int
     missing_counts: Mapping[str, int]
-    _moments: Moments | PairwiseMoments = field(repr=False)
+    _moments: contract.Moments | contract.PairwiseMoments = field(repr=False)
 
     # --- what the summary describes ----------------------------------------------------
 
@@ -86,13 +75,13 @@ class Summary:
     def columns(self) -> tuple[str, ...]:
         """Every tracked column: numeric, then one indicator per level of each categorical."""
         return self.numeric + tuple(
-            indicator_name(var, level) for var, lv in self.levels.items() for level in lv
+            contract.indicator_name(var, level) for var, lv in self.levels.items() for level in lv
         )
 
     @property
     def terms(self) -> dict[str, list[str]]:
         """Categorical variable -> its indicator columns sent (the reference level left out)."""
-        return {var: list(indicator_columns(var, lv)) for var, lv in self.levels.items()}
+        return {var: list(contract.indicator_columns(var, lv)) for var, lv in self.levels.items()}
 
     @property
     def predictors(self) -> tuple[str, ...]:
@@ -108,13 +97,13 @@ class Summary:
     @property
     def pairwise(self) -> bool:
         """Whether pairs of columns were summarized on different rows (missing="pairwise")."""
-        return isinstance(self._moments, PairwiseMoments)
+        return isinstance(self._moments, contract.PairwiseMoments)
 
     @property
     def n(self) -> float:
         """Observations (or the sum of weights); under pairwise deletion, the smallest pair's."""
         m = self._moments
-        if isinstance(m, Moments):
+        if isinstance(m, contract.Moments):
             return m.n
         idx = self._index(self.names)
         return float(m.n[np.ix_(idx, idx)].min()) if idx.size else 0.0
@@ -125,7 +114,7 @@ class Summary:
         m = self._moments
         idx = self._index(self.names)
         means: np.ndarray = (
-            m.mean[idx].copy() if isinstance(m, Moments) else m.mean[idx, idx].copy()
+            m.mean[idx].copy() if isinstance(m, contract.Moments) else m.mean[idx, idx].copy()
         )
         return means
 
@@ -141,7 +130,7 @@ class Summary:
         """Sample covariance of ``names``: co-moments over n - 1 (frequency-weight convention)."""
         m = self._moments
         idx = self._index(self.names)
-        if isinstance(m, Moments):
+        if isinstance(m, contract.Moments):
             cov_all: np.ndarray = m.comoments[np.ix_(idx, idx)] / (m.n - 1.0)
             return cov_all
         cov: np.ndarray = m.comoments[np.ix_(idx, idx)] / (m.n[np.ix_(idx, idx)] - 1.0)
@@ -156,8 +145,8 @@ class Summary:
         """
         m = self._moments
         idx = self._index(self.names)
-        if isinstance(m, Moments):
-            return correlation_from_comoments(m.comoments[np.ix_(idx, idx)])
+        if isinstance(m, contract.Moments):
+            return contract.correlation_from_comoments(m.comoments[np.ix_(idx, idx)])
         r: np.ndarray = m.correlation()[np.ix_(idx, idx)]
         np.fill_diagonal(r, 1.0)
         return r
@@ -166,7 +155,7 @@ class Summary:
     def notes(self) -> list[str]:
         """Things to know when reading results computed from this summary."""
         notes = []
-        if isinstance(self._moments, PairwiseMoments) and not self._moments.complete:
+        if isinstance(self._moments, contract.PairwiseMoments) and not self._moments.complete:
             notes.append(
                 "pairwise deletion: each correlation uses the rows where both columns are "
                 "observed, n is the smallest pairwise count, and the matrix may not be positive "
@@ -220,10 +209,11 @@ class Summary:
             raise TypeError(f"can only merge a Summary, got {type(other).__name__}")
         self._check_compatible(other)
         levels = {
-            var: sorted_levels((*self.levels[var], *other.levels[var])) for var in self.levels
+            var: contract.sorted_levels((*self.levels[var], *other.levels[var]))
+            for var in self.levels
         }
         columns = self.numeric + tuple(
-            indicator_name(var, level) for var, lv in levels.items() for level in lv
+            contract.indicator_name(var, level) for var, lv in levels.items() for level in lv
         )
         mine = _embed(self._moments, *self._embedding(columns, levels))
         theirs = _embed(other._moments, *other._embedding(columns, levels))
@@ -268,10 +258,10 @@ class Summary:
         k = len(self.numeric)
         for var, lv in levels.items():
             own = self.levels[var]
-            stand_in = where[indicator_name(var, own[0])] if own else -1
+            stand_in = where[contract.indicator_name(var, own[0])] if own else -1
             for level in lv:
                 if level in own:
-                    src[k] = where[indicator_name(var, level)]
+                    src[k] = where[contract.indicator_name(var, level)]
                 else:
                     src[k], zero[k] = stand_in, True
                 k += 1
@@ -299,7 +289,7 @@ class Summary:
         self._check_sendable()
         if kind == "auto":
             m = self._moments
-            pairwise_gaps = isinstance(m, PairwiseMoments) and not m.complete
+            pairwise_gaps = isinstance(m, contract.PairwiseMoments) and not m.complete
             kind = "correlation" if pairwise_gaps else "moments"
         doc: dict[str, Any]
         if kind == "moments":
@@ -351,15 +341,15 @@ class Summary:
 
 
 def _embed(
-    m: Moments | PairwiseMoments, src: np.ndarray, zero: np.ndarray
-) -> Moments | PairwiseMoments:
+    m: contract.Moments | contract.PairwiseMoments, src: np.ndarray, zero: np.ndarray
+) -> contract.Moments | contract.PairwiseMoments:
     """The moments over a wider set of columns: column ``k`` is this part's column ``src[k]``,
     or, where ``zero[k]``, an indicator of a level this part never saw (zero on its rows)."""
     keep = ~zero
-    if isinstance(m, Moments):
+    if isinstance(m, contract.Moments):
         mean = np.where(keep, m.mean[src], 0.0)
         com = np.where(keep[:, None] & keep[None, :], m.comoments[np.ix_(src, src)], 0.0)
-        return Moments(m.n, mean, com)
+        return contract.Moments(m.n, mean, com)
     # An indicator column absent from this part is 0 wherever its variable is observed, so
     # it shares the observation pattern of any other level of that variable (``src``) and
     # contributes zero means and zero co-moments; ``src < 0`` means never observed here.
@@ -371,7 +361,7 @@ def _embed(
     mean = np.where(rows_kept, m.mean[np.ix_(s, s)], 0.0)
     com = np.where(rows_kept & keep[None, :], m.comoments[np.ix_(s, s)], 0.0)
     sq = np.where(rows_kept, m.squares[np.ix_(s, s)], 0.0)
-    return PairwiseMoments(n, mean, com, sq)
+    return contract.PairwiseMoments(n, mean, com, sq)
 
 
 # --- building summaries ----------------------------------------------------------------
@@ -471,7 +461,7 @@ def _missing_counts(
 
 def _numeric_fast(
     block: Block, numeric_names: tuple[str, ...], w: np.ndarray | None
-) -> Moments | None:
+) -> contract.Moments | None:
     """Moments of a block of numbers only, taken to be complete; None when a value is missing
     or infinite (then the block takes the careful path).
 
@@ -484,23 +474,23 @@ def _numeric_fast(
     cols = [block.numeric[name] for name in numeric_names]
     if w is None:
         try:
-            return comoments(cols, optimistic=True)
-        except NotFinite:
+            return contract.comoments(cols, optimistic=True)
+        except contract.NotFinite:
             return None
     if not float(w.sum()) > 0.0:  # a missing weight, or none above zero
         return None
     with np.errstate(invalid="ignore", over="ignore"):  # the result is checked below
-        m = comoments(cols, w)
+        m = contract.comoments(cols, w)
     finite = np.isfinite(m.mean).all() and np.isfinite(np.diagonal(m.comoments)).all()
     return m if finite else None
 
 
-def _complete_moments(x: np.ndarray, w: np.ndarray | None) -> Moments:
+def _complete_moments(x: np.ndarray, w: np.ndarray | None) -> contract.Moments:
     """Moments of complete rows (the columns of ``x``); no rows (or no weight) gives none."""
     rows, q = x.shape
     if rows == 0 or (w is not None and not float(w.sum()) > 0.0):
-        return Moments.empty(q)
-    return comoments([x[:, j] for j in range(q)], w)
+        return contract.Moments.empty(q)
+    return contract.comoments([x[:, j] for j in range(q)], w)
 
 
 def _block_summary(block: Block, spec: _Spec) -> Summary:
@@ -559,7 +549,7 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
     for name, (codes, lv) in block.categorical.items():
         c = codes if every else codes[keep]
         present = np.bincount(c[c >= 0], minlength=len(lv)) > 0
-        used = sorted_levels(lv[i] for i in np.flatnonzero(present))
+        used = contract.sorted_levels(lv[i] for i in np.flatnonzero(present))
         rank = {level: i for i, level in enumerate(used)}
         position = np.array([rank.get(level, -1) for level in lv], dtype=np.intp)
         levels[name] = used
@@ -583,8 +573,10 @@ def _block_summary(block: Block, spec: _Spec) -> Summary:
                 x[~observed, col : col + width] = np.nan
             col += width
     wk = None if w is None else (w if every else w[keep])
-    moments: Moments | PairwiseMoments = (
-        pairwise_comoments(x, wk) if spec.missing == "pairwise" else _complete_moments(x, wk)
+    moments: contract.Moments | contract.PairwiseMoments = (
+        contract.pairwise_comoments(x, wk)
+        if spec.missing == "pairwise"
+        else _complete_moments(x, wk)
     )
     return Summary(
         numeric=numeric_names,
@@ -707,4 +699,4 @@ def merge_summaries(parts: Iterable[Summary]) -> Summary:
     level = list(parts)
     if not level:
         raise DataError("nothing to merge: no summaries given")
-    return merge_all(level)
+    return contract.merge_all(level)
