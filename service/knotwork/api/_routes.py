@@ -111,6 +111,14 @@ def _record(route: str, queue_s: float, compute_s: float, **fields: str | int) -
         info.fields.update(fields)
 
 
+#: A JSON body at most this large whose sections are all cheap is answered on the event loop:
+#: at most about 28 predictors as a correlation matrix (a thousand numbers as a table), where
+#: VIFs, GVIFs and the exact dependencies cost a few tenths of a millisecond (0.27 ms at
+#: p = 20, measured in process), less than handing the work to a thread and back.
+SMALL_JSON_BYTES = 16 * 1024
+CHEAP_SECTIONS = frozenset({"variables", "terms", "dependencies"})
+
+
 def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> Assessment:
     if media == JSON:
         prepared = decode_assess(body, limits)
@@ -177,7 +185,11 @@ async def _admitted_body(
     tags=["assessment"],
 )
 async def assess(request: Request[Any, Any, Any]) -> Assessment:
-    """Decode the body (JSON, Arrow IPC or Parquet), compute off the loop, answer."""
+    """Decode the body (JSON, Arrow IPC or Parquet), compute, answer.
+
+    The computation runs on the bounded pool, off the event loop, except for a small JSON
+    body asking only for cheap sections (see ``SMALL_JSON_BYTES``).
+    """
     state = request.app.state
     media = _media_type(request, (JSON, *_TABLE_MEDIA))
     query: bytes = request.scope.get("query_string", b"")
@@ -186,9 +198,29 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
         raise InvalidRequest(reason, [Problem("/query", reason)])
     pool: WorkPool = state.pool
     body, ticket = await _admitted_body(request, pool)
-    result, queue_s, compute_s = await pool.run(
-        _assess_one, body, media, query, state.limits, ticket=ticket
-    )
+    handed = False
+    result: Assessment
+    try:
+        if media == JSON and len(body) <= SMALL_JSON_BYTES:
+            # Decoding a small body is cheap; so is the answer when only cheap sections are
+            # asked for, which is then computed here rather than through a thread.
+            prepared = decode_assess(body, state.limits)
+            sections = prepared.options.sections
+            if sections is not None and CHEAP_SECTIONS.issuperset(sections):
+                started = time.perf_counter()
+                answer: Assessment = run(prepared)
+                _record("/v1/assess", 0.0, time.perf_counter() - started, encoding=media)
+                return answer
+            handed = True
+            result, queue_s, compute_s = await pool.run(run, prepared, ticket=ticket)
+        else:
+            handed = True
+            result, queue_s, compute_s = await pool.run(
+                _assess_one, body, media, query, state.limits, ticket=ticket
+            )
+    finally:
+        if not handed:
+            pool.release(ticket)
     _record("/v1/assess", queue_s, compute_s, encoding=media)
     return result
 
