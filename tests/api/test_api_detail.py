@@ -146,3 +146,26 @@ def test_an_unknown_detail_names_the_field(
     first = response.json()["errors"][0]
     assert first["pointer"] == pointer
     assert first["reason"] == "Invalid enum value 'everything'"
+
+
+@pytest.mark.parametrize("sections", [["variables"], ["variables", "removal"]])
+def test_small_requests_are_answered_as_the_codecs_compute_them(
+    client: Any, sections: list[str]
+) -> None:
+    # Computed on the event loop (cheap sections only) or on the pool: the same function on
+    # the same body either way, so the same bytes.
+    from knotwork.codecs import Limits, decode_assess, run
+
+    rng = np.random.default_rng(11)
+    x = rng.normal(size=(80, 6))
+    x[:, 1] += x[:, 0]
+    names = [f"x{j}" for j in range(6)]
+    doc = {
+        "input": {"kind": "correlation", "names": names, "n": 80,
+                  "matrix": np.corrcoef(x, rowvar=False).tolist()},
+        "options": {"sections": sections},
+    }  # fmt: skip
+    body = json.dumps(doc).encode()
+    answer = client.post("/v1/assess", content=body, headers={"Content-Type": JSON})
+    assert answer.status_code == 200
+    assert answer.content == msgspec.json.encode(run(decode_assess(body, Limits())))
