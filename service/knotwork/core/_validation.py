@@ -145,9 +145,17 @@ def _looks_rounded(r: np.ndarray, lam_min: float) -> Notice | None:
     """
     p = r.shape[0]
     off = r[~np.eye(p, dtype=bool)]
-    for decimals in range(1, 5):
+
+    def rounded_to(decimals: int) -> bool:
         scaled = off * 10.0**decimals
-        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-9 * 10.0**decimals):
+        return bool(np.all(np.abs(scaled - np.round(scaled)) <= 1e-9 * 10.0**decimals))
+
+    # Entries rounded to d decimals are rounded to d + 1 as well: one look at the finest
+    # settles the usual case, a matrix of full-precision correlations.
+    if not rounded_to(4):
+        return None
+    for decimals in range(1, 5):
+        if rounded_to(decimals):
             bound = (p - 1) * 0.5 * 10.0**-decimals
             if bound >= 0.1 * max(lam_min, 0.0):
                 return notice(
