@@ -18,6 +18,7 @@ from knotwork.core import INTERCEPT_NAME, Options, assess, from_frame
 from knotwork.demo import garden_centres, main, render
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
+# The notations we must not show users, spelled here only so the test can look for them.
 FOREIGN = ("GVIF^(", "(intercept)")
 
 

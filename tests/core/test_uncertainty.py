@@ -219,6 +219,8 @@ def test_p_value_is_the_upper_tail_at_the_threshold_and_uniform_on_the_boundary(
 def test_normal_edge_cases() -> None:
     result = normal_intervals([1.0, None, math.inf, 1.05], 30, 4, level=0.95)
     one, aliased, infinite, near_one = result.variables
+    # Exact: these edge cases return fixed values (the bounds of rho^2 = 0, an aliased
+    # predictor's None and 0), not results of a computation that rounding could move.
     assert (one.vif_interval, one.p_value) == ((1.0, 1.0), 1.0)  # R^2 = 0 exactly
     for v in (aliased, infinite):
         assert (v.vif, v.vif_interval, v.p_value, v.aliased) == (None, None, 0.0, True)
