@@ -25,7 +25,10 @@ from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
 from ._requests import (
     DETAILS,
+    REPLICATES_MAX,
+    REPLICATES_MIN,
     SECTIONS,
+    SEED_MAX,
     AssessOptions,
     AssessRequest,
     BatchRequest,
@@ -39,6 +42,7 @@ from ._requests import (
     OptionsError,
     RidgeOptions,
     TableInput,
+    UncertaintyOptions,
     check_options,
 )
 from ._results import (
@@ -63,6 +67,7 @@ from ._results import (
     Tangle,
     TermInflation,
     Tests,
+    Uncertainty,
     VariableF,
     VariableInflation,
 )
@@ -70,8 +75,11 @@ from ._results import (
 __all__ = [
     "DETAILS",
     "QUERY_PARAMETERS",
+    "REPLICATES_MAX",
+    "REPLICATES_MIN",
     "RESULT_TYPES",
     "SECTIONS",
+    "SEED_MAX",
     "AssessOptions",
     "AssessRequest",
     "Assessment",
@@ -112,6 +120,8 @@ __all__ = [
     "Tangle",
     "TermInflation",
     "Tests",
+    "Uncertainty",
+    "UncertaintyOptions",
     "VariableF",
     "VariableInflation",
     "check_options",

@@ -37,7 +37,8 @@ class QueryParameter:
         Where its value goes: option field names (``("ridge", "grid")``), or ``("input",
         "<field>")`` for a column name of the table.
     kind
-        ``number``, ``boolean``, ``string``, or ``list`` (comma-separated or repeated).
+        ``number``, ``integer`` (a whole number, written without a decimal point),
+        ``boolean``, ``string``, or ``list`` (comma-separated or repeated).
     item
         For a list, the kind of its items (``number`` or ``string``); None otherwise.
     schema
@@ -76,8 +77,10 @@ def _strip(t: Any) -> Any:
 
 def _kind(t: Any) -> str:
     t = _strip(t)
-    if isinstance(t, mi.FloatType | mi.IntType):
+    if isinstance(t, mi.FloatType):
         return "number"
+    if isinstance(t, mi.IntType):
+        return "integer"
     if isinstance(t, mi.BoolType):
         return "boolean"
     if isinstance(t, mi.StrType | mi.LiteralType):
@@ -141,9 +144,18 @@ def _number(parameter: str, text: str) -> float:
     return value
 
 
+def _integer(parameter: str, text: str) -> int:
+    # Digits only (an optional sign): "1e3" or "500.0" would be a float in a JSON body too.
+    if not text.lstrip("+-").isdigit() or not text.isascii() or len(text) > 40:
+        raise QueryError(parameter, "must be a whole number")
+    return int(text)
+
+
 def _value(p: QueryParameter, kind: str, text: str) -> Any:
     if kind == "number":
         return _number(p.name, text)
+    if kind == "integer":
+        return _integer(p.name, text)
     if kind == "boolean":
         flag = _BOOLEANS.get(text.lower())
         if flag is None:
@@ -200,6 +212,8 @@ def _text(kind: str, value: Any) -> str:
         return "true" if value else "false"
     if kind == "number":
         return repr(float(value))
+    if kind == "integer":
+        return str(int(value))
     return str(value)
 
 

@@ -23,7 +23,10 @@ from ._pointers import msgspec_fault
 
 __all__ = [
     "DETAILS",
+    "REPLICATES_MAX",
+    "REPLICATES_MIN",
     "SECTIONS",
+    "SEED_MAX",
     "AssessOptions",
     "AssessRequest",
     "BatchRequest",
@@ -37,6 +40,7 @@ __all__ = [
     "OptionsError",
     "RidgeOptions",
     "TableInput",
+    "UncertaintyOptions",
     "check_options",
 ]
 
@@ -266,6 +270,59 @@ class ComponentsOptions(_Wire, frozen=True):
     ) = None
 
 
+#: Fewest and most bootstrap replicates. Each replicate costs one weighted Gram product over the
+#: rows (O(n p^2), batched) plus one removal sequence when some inflation is near the threshold
+#: or above it; 1,000 replicates at n = 10,000, p = 20 take well under 2 s (docs/numerics.md),
+#: and the time grows linearly with the replicates. At 100 each end of a 95% percentile
+#: interval rests on 2.5 replicates; beyond 10,000 the Monte Carlo error of an end is far below
+#: its sampling error, so more replicates only cost time.
+REPLICATES_MIN = 100
+REPLICATES_MAX = 10_000
+#: Largest seed (numpy's generators take any non-negative integer; this keeps it an int64).
+SEED_MAX = 2**63 - 1
+
+
+class UncertaintyOptions(_Wire, frozen=True):
+    """How to measure the sampling uncertainty of the VIFs (absent: no intervals)."""
+
+    method: Annotated[
+        Literal["normal", "bootstrap"],
+        Meta(
+            description=(
+                "normal: exact intervals from the distribution of R_j^2 under jointly normal "
+                "predictors (any input with n); bootstrap: resampling rows (tables only), with "
+                "GVIF intervals, shares above the threshold and the stability of the removal."
+            )
+        ),
+    ] = "normal"
+    level: Annotated[
+        float,
+        Meta(gt=0, lt=1, description="Confidence level of the intervals, strictly in (0, 1)."),
+    ] = 0.95
+    replicates: Annotated[
+        int,
+        Meta(
+            ge=REPLICATES_MIN,
+            le=REPLICATES_MAX,
+            description=(
+                f"Bootstrap replicates, {REPLICATES_MIN} to {REPLICATES_MAX}; the time grows "
+                "linearly with them (ignored by normal)."
+            ),
+        ),
+    ] = 1000
+    seed: Annotated[
+        int,
+        Meta(
+            ge=0,
+            le=SEED_MAX,
+            description=(
+                "Seed of the bootstrap's random generator: the same seed and input give the "
+                "same answer (ignored by normal)."
+            ),
+        ),
+    ] = 0
+
+
 class AssessOptions(_Wire, frozen=True):
     """What to compute and how; every field has a safe default."""
 
@@ -331,6 +388,18 @@ class AssessOptions(_Wire, frozen=True):
             )
         ),
     ] = "summary"
+    uncertainty: (
+        Annotated[
+            UncertaintyOptions,
+            Meta(
+                description=(
+                    "Sampling uncertainty of the VIFs: intervals, p-values against the "
+                    "threshold, and (bootstrap) the stability of the removal; absent: none."
+                )
+            ),
+        ]
+        | None
+    ) = None
 
 
 class AssessRequest(_Wire, frozen=True):

@@ -69,6 +69,20 @@ class VariableInflation(_Result, frozen=True):
         Whether the VIF exceeds the threshold (always True when aliased).
     aliased
         Whether the predictor takes part in an exact linear dependency.
+    vif_interval
+        ``[low, high]``: interval for the VIF at ``uncertainty.level`` (normal: for the
+        population VIF, by inverting the distribution of R_j^2; bootstrap: percentile
+        interval); None without ``options.uncertainty``, or when aliased.
+    threshold_p_value
+        normal only: one-sided p-value for "the population VIF is at most the threshold",
+        :math:`P(R_j^2 \\ge \\text{observed} \\mid \\rho_j^2 = 1 - 1/\\text{threshold})`; small
+        values are evidence that it is above (0 when aliased). None otherwise.
+    share_above_threshold
+        bootstrap only: share of the usable replicates in which the VIF exceeds the
+        threshold (1 when aliased). None otherwise.
+    share_dropped
+        bootstrap only: share of the usable replicates in which the removal sequence drops
+        this predictor (or the term it belongs to). None otherwise.
     """
 
     name: str
@@ -78,6 +92,10 @@ class VariableInflation(_Result, frozen=True):
     se_inflation: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    vif_interval: Sequence[float] | None = None
+    threshold_p_value: float | None = None
+    share_above_threshold: float | None = None
+    share_dropped: float | None = None
 
 
 class TermInflation(_Result, frozen=True):
@@ -101,6 +119,18 @@ class TermInflation(_Result, frozen=True):
         Whether ``gvif_scaled`` exceeds the square root of the threshold (True when aliased).
     aliased
         Whether any of its columns takes part in an exact dependency.
+    gvif_interval
+        bootstrap only: ``[low, high]``, percentile interval of the GVIF at
+        ``uncertainty.level``; None otherwise, or when aliased.
+    gvif_scaled_interval
+        bootstrap only: the same interval for the scaled GVIF (compare with the square root
+        of the threshold).
+    share_above_threshold
+        bootstrap only: share of the usable replicates in which the scaled GVIF exceeds the
+        square root of the threshold (1 when aliased).
+    share_dropped
+        bootstrap only: share of the usable replicates in which the removal sequence drops
+        the term.
     """
 
     name: str
@@ -110,6 +140,10 @@ class TermInflation(_Result, frozen=True):
     gvif_scaled: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    gvif_interval: Sequence[float] | None = None
+    gvif_scaled_interval: Sequence[float] | None = None
+    share_above_threshold: float | None = None
+    share_dropped: float | None = None
 
 
 class Tangle(_Result, frozen=True):
@@ -808,6 +842,59 @@ class RepairReport(_Result, frozen=True):
     singular: bool = False
 
 
+class Uncertainty(_Result, frozen=True):
+    """How the intervals of ``variables`` and ``terms`` were made, and how stable the removal is.
+
+    Attributes
+    ----------
+    method
+        ``"normal"`` or ``"bootstrap"`` (echoed).
+    level
+        Confidence level of the intervals (echoed).
+    threshold
+        The VIF threshold of the p-values and shares (a rule of thumb, common practice).
+    n
+        normal: the observations the distribution of R_j^2 assumes (the summary's n).
+    rank
+        normal: predictors in the model the distribution assumes (p, or fewer when exact
+        dependencies leave fewer independent predictors); each R_j^2 has rank - 1 others.
+    approximate
+        normal: columns whose interval is an approximation because they cannot be normal
+        (indicator columns of a categorical variable, columns of a multi-column term).
+    replicates
+        bootstrap: replicates drawn (echoed); None for normal.
+    seed
+        bootstrap: the seed (echoed); the same seed and input give the same answer.
+    usable_replicates
+        bootstrap: replicates whose resampled design was not singular; every interval and
+        share counts these only.
+    singular_replicates
+        bootstrap: replicates left out because the resampled design was singular (a column
+        constant in the resample, such as a rare category drawn no time, or a new exact
+        dependency).
+    kept
+        bootstrap: the predictors and terms the removal sequence keeps on the full sample.
+    share_same_kept
+        bootstrap: share of the usable replicates whose removal sequence keeps exactly that set.
+    notes
+        How to read the intervals, p-values and shares.
+    """
+
+    method: str = ""
+    level: float = math.nan
+    threshold: float = math.nan
+    n: float = math.nan
+    rank: int = 0
+    approximate: Sequence[str] = ()
+    replicates: int | None = None
+    seed: int | None = None
+    usable_replicates: int | None = None
+    singular_replicates: int | None = None
+    kept: Sequence[str] | None = None
+    share_same_kept: float | None = None
+    notes: Sequence[str] = ()
+
+
 class Assessment(_Result, frozen=True):
     """The full collinearity assessment of one design.
 
@@ -858,6 +945,9 @@ class Assessment(_Result, frozen=True):
         keeps max VIF, effective df and R^2 at eight k, the first and the last included) and
         the choices' original-unit coefficients, and the components' loadings, variable
         correlations, variances, original-unit and OLS coefficients and R^2 by component.
+    uncertainty
+        How the intervals, p-values and shares in ``variables`` and ``terms`` were made, and
+        (bootstrap) the stability of the removal; None without ``options.uncertainty``.
     """
 
     input_kind: str = ""
@@ -879,6 +969,7 @@ class Assessment(_Result, frozen=True):
     warnings: Sequence[Notice] = ()
     cautions: Sequence[str] = ()
     detail: str = "full"
+    uncertainty: Uncertainty | None = None
 
 
 #: Every record an answer can contain, the answer itself last.
@@ -904,5 +995,6 @@ RESULT_TYPES: tuple[type[msgspec.Struct], ...] = (
     RemedyRow,
     Comparison,
     RepairReport,
+    Uncertainty,
     Assessment,
 )

@@ -21,18 +21,21 @@ from knotwork.core import (
     InputError,
     Interrupted,
     OptionError,
+    Options,
     TooFewDataError,
-    removal_sequence,
-    stop_when,
-)
-from knotwork.core._uncertainty import (
-    UncertaintyOptions,
+    assess,
     bootstrap_intervals,
-    check_uncertainty,
+    design_from_table,
+    from_correlation,
+    from_moments,
+    from_table,
     normal_intervals,
     r2_cdf,
     r2_sf,
+    removal_sequence,
+    stop_when,
 )
+from knotwork_contract import REPLICATES_MAX, REPLICATES_MIN, UncertaintyOptions
 
 # A known population: unit variances, so the population VIFs are the diagonal of the inverse.
 SIGMA = np.array(
@@ -449,73 +452,117 @@ def test_bootstrap_stops_between_blocks(monkeypatch, rng: np.random.Generator) -
 
 X4 = np.random.default_rng(0).standard_normal((30, 4))
 
+TABLE4 = {name: X4[:, j] for j, name in enumerate("abcd")}
+
+# The bounds of level, replicates, seed and threshold are the contract's
+# (knotwork_contract.UncertaintyOptions): msgspec's own sentences, the same a request gets.
 ERRORS = [
     (
-        lambda: check_uncertainty(UncertaintyOptions(level=1.0)),
+        lambda: normal_intervals([2.0], 30, 3, level=1.0),
         OptionError,
         "/uncertainty/level",
-        "level must be a number strictly between 0 and 1 (for example 0.95); got 1.0",
+        "Expected `float` < 1.0",
     ),
     (
         lambda: normal_intervals([2.0], 30, 3, level=0),
         OptionError,
         "/uncertainty/level",
-        "level must be a number strictly between 0 and 1 (for example 0.95); got 0",
+        "Expected `float` > 0.0",
     ),
     (
         lambda: bootstrap_intervals(X4, list("abcd"), level="high"),
         OptionError,
         "/uncertainty/level",
-        "level must be a number strictly between 0 and 1 (for example 0.95); got 'high'",
+        "Expected `float`, got `str`",
     ),
     (
         lambda: bootstrap_intervals(X4, list("abcd"), replicates=99),
         OptionError,
         "/uncertainty/replicates",
-        "replicates must be a whole number from 100 to 10000; got 99",
+        f"Expected `int` >= {REPLICATES_MIN}",
     ),
     (
-        lambda: check_uncertainty(UncertaintyOptions(method="bootstrap", replicates=10_001)),
+        lambda: bootstrap_intervals(X4, list("abcd"), replicates=10_001),
         OptionError,
         "/uncertainty/replicates",
-        "replicates must be a whole number from 100 to 10000; got 10001",
+        f"Expected `int` <= {REPLICATES_MAX}",
     ),
     (
         lambda: bootstrap_intervals(X4, list("abcd"), replicates=500.0),
         OptionError,
         "/uncertainty/replicates",
-        "replicates must be a whole number from 100 to 10000; got 500.0",
+        "Expected `int`, got `float`",
+    ),
+    (
+        lambda: bootstrap_intervals(X4, list("abcd"), replicates=True),
+        OptionError,
+        "/uncertainty/replicates",
+        "Expected `int`, got `bool`",
     ),
     (
         lambda: bootstrap_intervals(X4, list("abcd"), seed=-1),
         OptionError,
         "/uncertainty/seed",
-        "seed must be a whole number from 0 to 2**63 - 1; got -1",
+        "Expected `int` >= 0",
     ),
     (
-        lambda: check_uncertainty(UncertaintyOptions(method="jackknife")),
+        lambda: assess(from_table(TABLE4), Options(uncertainty=UncertaintyOptions(method="x"))),
         OptionError,
         "/uncertainty/method",
-        "unknown method 'jackknife'; choose from ('normal', 'bootstrap')",
+        "Invalid enum value 'x'",
     ),
     (
-        lambda: check_uncertainty(UncertaintyOptions(method="bootstrap"), "correlation"),
+        lambda: assess(
+            from_correlation(["a", "b"], [[1.0, 0.5], [0.5, 1.0]], 30),
+            Options(uncertainty=UncertaintyOptions(method="bootstrap")),
+        ),
         OptionError,
         "/uncertainty/method",
         "the bootstrap resamples rows, and a correlation input has none; send the rows, or "
         "use method 'normal'",
     ),
     (
-        lambda: check_uncertainty(UncertaintyOptions(method="bootstrap"), "moments"),
+        lambda: assess(
+            from_moments(["a", "b"], 30, [0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]]),
+            Options(uncertainty=UncertaintyOptions(method="bootstrap")),
+        ),
         OptionError,
         "/uncertainty/method",
         "the bootstrap resamples rows, and a moments input has none",
     ),
     (
+        lambda: assess(
+            from_table(TABLE4), Options(uncertainty=UncertaintyOptions(method="bootstrap"))
+        ),
+        OptionError,
+        "/uncertainty/method",
+        "the bootstrap needs the design's rows (design_from_table), not only its summary",
+    ),
+    (
+        lambda: assess(
+            *design_from_table(
+                {**TABLE4, "a": np.where(np.arange(30) == 3, np.nan, X4[:, 0])}, missing="pairwise"
+            )[:1],
+            Options(uncertainty=UncertaintyOptions(method="bootstrap")),
+        ),
+        OptionError,
+        "/uncertainty/method",
+        "the bootstrap resamples complete rows, and pairwise deletion keeps none; use missing "
+        "'drop_rows', or method 'normal'",
+    ),
+    (
+        lambda: assess(
+            from_table(TABLE4), Options(intercept=False, uncertainty=UncertaintyOptions())
+        ),
+        OptionError,
+        "/uncertainty",
+        "intervals are for centred VIFs (a model with an intercept)",
+    ),
+    (
         lambda: normal_intervals([2.0], 30, 3, threshold=1.0),
         OptionError,
         "/threshold",
-        "threshold must be a finite number above 1 (VIF >= 1 always)",
+        "Expected `float` > 1.0",
     ),
     (
         lambda: bootstrap_intervals(X4, list("abcd"), protect=["e"]),

@@ -206,7 +206,9 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
             # asked for, which is then computed here rather than through a thread.
             prepared = decode_assess(body, state.limits)
             sections = prepared.options.sections
-            if sections is not None and CHEAP_SECTIONS.issuperset(sections):
+            cheap = sections is not None and CHEAP_SECTIONS.issuperset(sections)
+            # Intervals (a root search per VIF, or replicates) are never cheap.
+            if cheap and prepared.options.uncertainty is None:
                 started = time.perf_counter()
                 answer: Assessment = run(prepared)
                 _record("/v1/assess", 0.0, time.perf_counter() - started, encoding=media)

@@ -5,10 +5,12 @@ from __future__ import annotations
 from dataclasses import replace
 
 from knotwork.core import (
+    DesignRows,
     KnotworkError,
     Options,
     Summary,
     assess,
+    design_from_table,
     from_correlation,
     from_moments,
     from_table,
@@ -20,7 +22,7 @@ from knotwork_contract import Assessment, AssessOptions, Problem
 from ._errors import UnusableInput
 from ._prepared import CorrelationData, MomentsData, Prepared, TableData
 
-__all__ = ["core_options", "run", "summarize"]
+__all__ = ["core_options", "run", "summarize", "summarize_with_rows"]
 
 
 def core_options(options: AssessOptions) -> Options:
@@ -37,7 +39,34 @@ def core_options(options: AssessOptions) -> Options:
     if components is not None:
         # Only what the client set: the core keeps its own defaults otherwise.
         result = replace(result, components_rule=components.rule, components_limit=components.limit)
+    if options.uncertainty is not None:
+        result = replace(result, uncertainty=options.uncertainty)
     return result
+
+
+def _wants_rows(prepared: Prepared) -> bool:
+    unc = prepared.options.uncertainty
+    return unc is not None and unc.method == "bootstrap"
+
+
+def summarize_with_rows(prepared: Prepared) -> tuple[Summary, DesignRows | None]:
+    """The core summary and, when the request asks for the bootstrap and sends rows, the
+    design's rows (after categorical expansion and the missing-value policy).
+
+    The rows cost one (rows, p) float64 array beside the decoded columns, and only when the
+    bootstrap is asked for; every other request keeps the one pass over the columns.
+    """
+    data = prepared.data
+    if isinstance(data, TableData) and _wants_rows(prepared):
+        return design_from_table(
+            data.columns,
+            categorical=data.categorical or None,
+            response=data.response,
+            weights=data.weights,
+            missing=prepared.options.missing,
+            repair=prepared.options.repair,
+        )
+    return summarize(prepared), None
 
 
 def summarize(prepared: Prepared) -> Summary:
@@ -89,7 +118,8 @@ def run(prepared: Prepared) -> Assessment:
         pointers translated into the request the client sent (``prepared.origin``).
     """
     try:
-        result = assess(summarize(prepared), core_options(prepared.options))
+        summary, rows = summarize_with_rows(prepared)
+        result = assess(summary, core_options(prepared.options), rows)
     except KnotworkError as exc:
         where = prepared.origin
         problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]

@@ -1,7 +1,8 @@
 """The numerical core of knotwork: pure numpy/scipy, no web imports.
 
 Build a :class:`Summary` with :func:`from_table`, :func:`from_frame`, :func:`from_correlation`,
-:func:`from_moments` or :func:`merge_moments`, then call :func:`assess`. The result records
+:func:`from_moments` or :func:`merge_moments`, then call :func:`assess`
+(:func:`design_from_table` also keeps the design's rows, for the bootstrap). The result records
 (:class:`~knotwork_contract.Assessment` and its parts) are the shared contract's: import them
 from :mod:`knotwork_contract`.
 """
@@ -31,9 +32,10 @@ from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._repair import Repair, nearest_correlation
 from ._ridge import default_grid, ridge_analysis
-from ._rows import from_frame, from_table
+from ._rows import DesignRows, design_from_table, from_frame, from_table
 from ._significance import collinearity_tests
 from ._summary import INTERCEPT_NAME, Summary, Term
+from ._uncertainty import bootstrap_intervals, normal_intervals, r2_cdf, r2_sf
 from ._validation import MISSING_POLICIES, REPAIR_POLICIES
 
 __all__ = [
@@ -44,6 +46,7 @@ __all__ = [
     "REPAIR_POLICIES",
     "SECTIONS",
     "DependencyReport",
+    "DesignRows",
     "InputError",
     "Interrupted",
     "KnotworkError",
@@ -59,12 +62,14 @@ __all__ = [
     "Term",
     "TooFewDataError",
     "assess",
+    "bootstrap_intervals",
     "check_options",
     "checkpoint",
     "collinearity_tests",
     "compare_remedies",
     "condition_diagnostics",
     "default_grid",
+    "design_from_table",
     "find_dependencies",
     "from_correlation",
     "from_frame",
@@ -73,7 +78,10 @@ __all__ = [
     "generalized_inflation",
     "merge_moments",
     "nearest_correlation",
+    "normal_intervals",
     "principal_components",
+    "r2_cdf",
+    "r2_sf",
     "removal_sequence",
     "ridge_analysis",
     "stop_when",

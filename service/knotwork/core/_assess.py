@@ -6,6 +6,7 @@ import math
 from collections.abc import Collection
 from dataclasses import dataclass
 
+import msgspec
 import numpy as np
 
 from knotwork_contract import (
@@ -14,6 +15,9 @@ from knotwork_contract import (
     Notice,
     OptionsError,
     TermInflation,
+    Uncertainty,
+    UncertaintyOptions,
+    VariableInflation,
 )
 from knotwork_contract import check_options as contract_check_options
 
@@ -28,8 +32,10 @@ from ._regression import Regression
 from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._ridge import ridge_analysis
+from ._rows import DesignRows
 from ._significance import collinearity_tests
 from ._summary import Summary
+from ._uncertainty import bootstrap_intervals, normal_intervals
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
@@ -65,6 +71,10 @@ class Options:
         A tangle is a component with condition index above ``index_threshold`` and two or more
         variance-decomposition proportions above ``proportion_threshold`` (common practice
         after Belsley, Kuh & Welsch: 30 and 0.5).
+    uncertainty
+        The contract's :class:`~knotwork_contract.UncertaintyOptions` (method ``normal`` or
+        ``bootstrap``, level, replicates, seed), or None for no intervals. The bootstrap needs
+        the design's rows (:func:`~knotwork.core.design_from_table`, passed to :func:`assess`).
     """
 
     threshold: float = 5.0
@@ -76,6 +86,7 @@ class Options:
     components_limit: float | None = None
     index_threshold: float = 30.0
     proportion_threshold: float = 0.5
+    uncertainty: UncertaintyOptions | None = None
 
     def wants(self, section: str) -> bool:
         return self.sections is None or section in self.sections
@@ -93,16 +104,18 @@ def _wire_document(options: Options) -> dict[str, object]:
         doc["sections"] = list(options.sections)
     if options.ridge_grid is not None:
         doc["ridge"] = {"grid": list(options.ridge_grid)}
+    if options.uncertainty is not None:
+        doc["uncertainty"] = msgspec.structs.asdict(options.uncertainty)
     return doc
 
 
-def check_options(options: Options, summary: Summary) -> None:
+def check_options(options: Options, summary: Summary, rows: DesignRows | None = None) -> None:
     """Validate options against the summary, naming the option at fault.
 
     The rules the contract declares (bounds, enums: the threshold finite and above 1, the
     sections, k >= 0, the components rule) are checked by the contract itself, in its own
     words; what depends on the input or on two options together is checked here. The kernels
-    trust what passes.
+    trust what passes. ``rows`` are the design's rows, which only the bootstrap needs.
     """
     try:
         contract_check_options(_wire_document(options))
@@ -134,11 +147,52 @@ def check_options(options: Options, summary: Summary) -> None:
                 "has lost the means",
             )
         )
+    problems.extend(_uncertainty_problems(options, summary, rows))
     if problems:
         raise OptionError(problems[0].reason, problems)
 
 
-def assess(summary: Summary, options: Options | None = None) -> Assessment:
+def _uncertainty_problems(
+    options: Options, summary: Summary, rows: DesignRows | None
+) -> list[Problem]:
+    """What the contract cannot state about ``uncertainty``: it depends on the input."""
+    unc = options.uncertainty
+    if unc is None:
+        return []
+    if not options.intercept:
+        return [
+            Problem(
+                "/uncertainty",
+                "intervals are for centred VIFs (a model with an intercept); with "
+                "intercept=false leave uncertainty out",
+            )
+        ]
+    if unc.method != "bootstrap":
+        return []
+    if summary.input_kind != "table":
+        return [
+            Problem(
+                "/uncertainty/method",
+                f"the bootstrap resamples rows, and a {summary.input_kind} input has none; send "
+                "the rows, or use method 'normal'",
+            )
+        ]
+    if rows is None:
+        reason = (
+            "the bootstrap resamples complete rows, and pairwise deletion keeps none; use "
+            "missing 'drop_rows', or method 'normal'"
+            if summary.comoments is None
+            else "the bootstrap needs the design's rows (design_from_table), not only its summary"
+        )
+        return [Problem("/uncertainty/method", reason)]
+    if rows.names != summary.names:
+        return [Problem("/uncertainty/method", "the rows are not those of this summary")]
+    return []
+
+
+def assess(
+    summary: Summary, options: Options | None = None, rows: DesignRows | None = None
+) -> Assessment:
     """Compute every requested diagnostic from a summary.
 
     Parameters
@@ -147,6 +201,9 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         The design's summary (from rows, a correlation matrix or moments).
     options
         What to compute and the thresholds (defaults: VIF 5, intercept, all sections).
+    rows
+        The design's rows (:func:`~knotwork.core.design_from_table`); needed only by the
+        bootstrap (``options.uncertainty.method == "bootstrap"``), ignored otherwise.
 
     Returns
     -------
@@ -169,7 +226,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     """
     options = options or Options()
     summary.check()
-    check_options(options, summary)
+    check_options(options, summary, rows)
     p = summary.p
     names = summary.names
     notes: list[Notice] = list(summary.notes)
@@ -302,6 +359,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             components=components,
             spectrum=spectrum,
         )
+    uncertainty = None
+    if options.uncertainty is not None:
+        checkpoint()
+        variables, terms, uncertainty = _uncertainty(
+            summary, options, options.uncertainty, rows, variables, terms, deps
+        )
     return Assessment(
         input_kind=summary.input_kind,
         n=float(summary.n),
@@ -321,7 +384,96 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         repair=summary.repair,
         warnings=tuple(dict.fromkeys(notes)),
         cautions=CAUTIONS,
+        uncertainty=uncertainty,
     )
+
+
+def _uncertainty(
+    summary: Summary,
+    options: Options,
+    unc: UncertaintyOptions,
+    rows: DesignRows | None,
+    variables: tuple[VariableInflation, ...],
+    terms: tuple[TermInflation, ...],
+    deps: DependencyReport,
+) -> tuple[tuple[VariableInflation, ...], tuple[TermInflation, ...], Uncertainty]:
+    """The intervals, p-values and shares in the variables and terms, and their record."""
+    rep = msgspec.structs.replace
+    if unc.method == "normal":
+        # Any summary with a correlation matrix and n: the finite VIFs are those of the
+        # independent predictors, so the distribution's p is their number (the rank).
+        rank = int(deps.independent.shape[0])
+        term_columns = [c for term in summary.terms for c in term.columns]
+        normal = normal_intervals(
+            [v.vif for v in variables],
+            summary.n,
+            rank,
+            level=unc.level,
+            threshold=options.threshold,
+            names=summary.names,
+            indicators=term_columns,
+        )
+        variables = tuple(
+            rep(v, vif_interval=iv.vif_interval, threshold_p_value=iv.p_value)
+            for v, iv in zip(variables, normal.variables, strict=True)
+        )
+        record = Uncertainty(
+            method="normal",
+            level=float(unc.level),
+            threshold=float(options.threshold),
+            n=float(summary.n),
+            rank=rank,
+            approximate=tuple(iv.name for iv in normal.variables if iv.approximate),
+            notes=normal.notes,
+        )
+        return variables, terms, record
+    assert rows is not None  # check_options refuses the bootstrap without rows
+    spread = bootstrap_intervals(
+        rows.x,
+        rows.names,
+        terms={term.name: term.columns for term in summary.terms},
+        weights=rows.weights,
+        threshold=options.threshold,
+        protect=options.protect,
+        replicates=unc.replicates,
+        level=unc.level,
+        seed=unc.seed,
+    )
+    variables = tuple(
+        rep(
+            v,
+            vif_interval=b.vif_interval,
+            share_above_threshold=b.share_above,
+            share_dropped=b.share_dropped,
+        )
+        for v, b in zip(variables, spread.variables, strict=True)
+    )
+    by_term = {b.name: b for b in spread.terms}
+    terms = tuple(
+        rep(
+            t,
+            gvif_interval=by_term[t.name].gvif_interval,
+            gvif_scaled_interval=by_term[t.name].gvif_scaled_interval,
+            share_above_threshold=by_term[t.name].share_above,
+            share_dropped=by_term[t.name].share_dropped,
+        )
+        for t in terms
+    )
+    record = Uncertainty(
+        method="bootstrap",
+        level=float(unc.level),
+        threshold=float(options.threshold),
+        n=float(summary.n),
+        rank=int(deps.independent.shape[0]),
+        replicates=spread.replicates,
+        seed=spread.seed,
+        usable_replicates=spread.usable_replicates,
+        singular_replicates=spread.singular_replicates,
+        kept=spread.kept,
+        share_same_kept=spread.share_same_kept,
+        notes=spread.notes,
+    )
+    return variables, terms, record
 
 
 def _conditioning(

@@ -10,6 +10,7 @@ error.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -61,6 +62,55 @@ def column_array(values: object, pointer: str, *, check: bool = True) -> tuple[n
     return a, False
 
 
+@dataclass(frozen=True, slots=True, eq=False)
+class DesignRows:
+    """The rows of a design, for the row bootstrap: predictors after categorical expansion and
+    the missing-value policy, in the summary's order.
+
+    Attributes
+    ----------
+    x
+        (rows, p) float64, C order; every value finite.
+    names
+        The predictors (the summary's ``names``).
+    weights
+        The prior (frequency or survey) weight of each row, or None.
+    """
+
+    x: np.ndarray
+    names: tuple[str, ...]
+    weights: np.ndarray | None = None
+
+
+def design_from_table(
+    columns: Mapping[str, object],
+    *,
+    categorical: Mapping[str, Sequence[str | None]] | None = None,
+    response: str | None = None,
+    weights: str | None = None,
+    missing: str = "reject",
+    repair: str = "reject",
+) -> tuple[Summary, DesignRows | None]:
+    """:func:`from_table`, and the design's rows for the bootstrap.
+
+    The rows are those the summary used (``drop_rows`` leaves out incomplete ones), with
+    categorical columns expanded to their indicator columns. Under ``pairwise`` deletion with
+    missing values no complete design exists, and the rows are None.
+
+    Memory: one (rows, p) float64 array beside the columns, 8 bytes a cell of the design.
+    """
+    if weights is None:
+        try:
+            return _from_table(
+                columns, categorical, response, weights, missing, repair, optimistic=True, rows=True
+            )
+        except NotFinite:
+            pass
+    return _from_table(
+        columns, categorical, response, weights, missing, repair, optimistic=False, rows=True
+    )
+
+
 def from_table(
     columns: Mapping[str, object],
     *,
@@ -110,10 +160,12 @@ def from_table(
         try:
             return _from_table(
                 columns, categorical, response, weights, missing, repair, optimistic=True
-            )
+            )[0]
         except NotFinite:
             pass
-    return _from_table(columns, categorical, response, weights, missing, repair, optimistic=False)
+    return _from_table(columns, categorical, response, weights, missing, repair, optimistic=False)[
+        0
+    ]
 
 
 # One pass of checks in the order a caller needs their errors (names, lengths, missing values
@@ -127,8 +179,10 @@ def _from_table(  # noqa: C901
     repair: str,
     *,
     optimistic: bool,
-) -> Summary:
-    """:func:`from_table`; ``optimistic``: values not checked, :class:`NotFinite` if needed."""
+    rows: bool = False,
+) -> tuple[Summary, DesignRows | None]:
+    """:func:`from_table`; ``optimistic``: values not checked, :class:`NotFinite` if needed;
+    ``rows``: also the design's rows (:func:`design_from_table`)."""
     check_policy(missing, MISSING_POLICIES, "/missing")
     check_policy(repair, REPAIR_POLICIES, "/repair")
     categorical = dict(categorical or {})
@@ -262,11 +316,23 @@ def _from_table(  # noqa: C901
     if missing == "pairwise" and counts:
         x = np.column_stack([c[keep] for c in design])
         wk = None if w is None else w[keep]
-        return _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
+        summary = _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
+        return summary, None
 
     total, mean, com = comoments(design, w, keep, optimistic=optimistic, between_blocks=checkpoint)
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
-    return Summary(
+    design_rows = None
+    if rows:
+        # The values are finite here: comoments found every kept value so (or the checked
+        # pass refused them).
+        every = bool(keep.all())
+        x = np.empty((int(keep.sum()), len(names)))
+        for j, (_, a, _) in enumerate(predictors):
+            x[:, j] = a if every else a[keep]
+        design_rows = DesignRows(
+            x=x, names=names, weights=None if w is None else (w if every else w[keep])
+        )
+    summary = Summary(
         names=names,
         n=total,
         correlation=correlation_from_comoments(com),
@@ -279,6 +345,7 @@ def _from_table(  # noqa: C901
         rows=used,
         sources=tuple(pointers),
     )
+    return summary, design_rows
 
 
 def _pairwise_summary(

@@ -10,7 +10,8 @@ Two ways to say how far a sample VIF may be from the population value:
   and GVIF, the share of replicates above the threshold, and how stable the proposed removal
   sequence is. Needs the rows.
 
-Everything here is pure numpy/scipy and is wired into the request options elsewhere.
+Everything here is pure numpy/scipy; :func:`knotwork.core.assess` calls it when
+``options.uncertainty`` is set (``core/_assess.py``), with the design's rows for the bootstrap.
 """
 
 from __future__ import annotations
@@ -22,6 +23,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
+from knotwork_contract import OptionsError
+from knotwork_contract import check_options as contract_check_options
 from knotwork_contract import escape as esc
 
 from ._dependencies import NULL_RTOL, Spectrum, find_dependencies
@@ -31,19 +34,8 @@ from ._interrupt import checkpoint
 from ._removal import removal_sequence
 from ._summary import Summary
 
-METHODS = ("normal", "bootstrap")
-#: Fewest and most bootstrap replicates. Each replicate costs one weighted Gram product over the
-#: rows, O(n p^2) work, plus one removal sequence when some inflation is near the threshold or
-#: above it (bench/bench_uncertainty.py: 1,000 replicates at n = 10,000, p = 20 take 0.5-0.8 s
-#: here, the removal running in every one); time grows linearly with the replicates. Each end
-#: of a 95% percentile interval rests on about B/40 replicates, 2.5 at the minimum of 100;
-#: beyond 10,000 the Monte Carlo error of an end is far below its sampling error, so more
-#: replicates only cost time.
-REPLICATES_MIN = 100
-REPLICATES_MAX = 10_000
-#: Largest seed accepted (numpy's generators take any non-negative integer; this keeps it an
-#: int64 everywhere).
-SEED_MAX = 2**63 - 1
+# The bounds of level, replicates and seed (and the cost of a replicate) are the contract's:
+# knotwork_contract.UncertaintyOptions, REPLICATES_MIN, REPLICATES_MAX, SEED_MAX.
 
 #: Truncation bound of the mixture series: every CDF value computed here is within this of the
 #: exact value, apart from rounding (see :func:`r2_cdf`).
@@ -64,7 +56,7 @@ _NORMALITY_NOTE = (
     "for them the interval is an approximation."
 )
 _PVALUE_NOTE = (
-    "p_value is one-sided, for the hypothesis that the population VIF is at most the "
+    "threshold_p_value is one-sided, for the hypothesis that the population VIF is at most the "
     "threshold; the threshold itself is a rule of thumb from common practice."
 )
 _BOOTSTRAP_NOTE = (
@@ -75,31 +67,7 @@ _BOOTSTRAP_NOTE = (
 
 
 # --------------------------------------------------------------------------------------------
-# Options
-
-
-@dataclass(frozen=True, slots=True)
-class UncertaintyOptions:
-    """How to measure sampling uncertainty.
-
-    Attributes
-    ----------
-    method
-        ``"normal"`` (exact normal-theory intervals; any input kind) or ``"bootstrap"``
-        (resampling rows; tables only).
-    level
-        Confidence level of the intervals, strictly between 0 and 1.
-    replicates
-        Bootstrap replicates, from ``REPLICATES_MIN`` to ``REPLICATES_MAX``.
-    seed
-        Seed of the bootstrap's random generator (``numpy.random.default_rng``); the same seed
-        and input give the same answer bit for bit.
-    """
-
-    method: str = "normal"
-    level: float = 0.95
-    replicates: int = 1000
-    seed: int = 0
+# Options: the contract's rules, in its own words
 
 
 def _is_number(x: object) -> bool:
@@ -110,84 +78,39 @@ def _is_whole(x: object) -> bool:
     return isinstance(x, int | np.integer) and not isinstance(x, bool)
 
 
-def _level_problem(level: object) -> Problem | None:
-    if _is_number(level) and 0.0 < float(level) < 1.0:  # type: ignore[arg-type]
-        return None
-    return Problem(
-        "/uncertainty/level",
-        f"level must be a number strictly between 0 and 1 (for example 0.95); got {level!r}",
-    )
+def _plain(x: object) -> object:
+    """numpy scalars as the Python values the contract checks (a float stays a float)."""
+    return x.item() if isinstance(x, np.generic) else x
 
 
-def _replicates_problem(replicates: object) -> Problem | None:
-    if _is_whole(replicates) and REPLICATES_MIN <= int(replicates) <= REPLICATES_MAX:  # type: ignore[call-overload]
-        return None
-    return Problem(
-        "/uncertainty/replicates",
-        f"replicates must be a whole number from {REPLICATES_MIN} to {REPLICATES_MAX}; "
-        f"got {replicates!r}",
-    )
-
-
-def _seed_problem(seed: object) -> Problem | None:
-    if _is_whole(seed) and 0 <= int(seed) <= SEED_MAX:  # type: ignore[call-overload]
-        return None
-    return Problem(
-        "/uncertainty/seed", f"seed must be a whole number from 0 to 2**63 - 1; got {seed!r}"
-    )
-
-
-def _threshold_problem(threshold: object) -> Problem | None:
-    # The same rule and wording as the assessment's own threshold option.
-    if _is_number(threshold) and math.isfinite(threshold) and threshold > 1:  # type: ignore[arg-type,operator]
-        return None
-    return Problem("/threshold", "threshold must be a finite number above 1 (VIF >= 1 always)")
-
-
-def _raise(problems: Sequence[Problem | None]) -> None:
-    found = [p for p in problems if p is not None]
-    if found:
-        raise OptionError(found[0].reason, found)
-
-
-def check_uncertainty(options: UncertaintyOptions, input_kind: str | None = None) -> None:
-    """Validate the uncertainty options, naming each option at fault.
-
-    Parameters
-    ----------
-    options
-        The options as given.
-    input_kind
-        ``"table"``, ``"correlation"`` or ``"moments"`` (the summary's ``input_kind``), to
-        refuse the bootstrap where there are no rows; None skips that check.
+def _check_settings(
+    *,
+    threshold: object,
+    level: object,
+    replicates: object = None,
+    seed: object = None,
+    method: str = "normal",
+) -> None:
+    """Check the settings of :func:`normal_intervals` or :func:`bootstrap_intervals` by the
+    contract's rules for ``threshold`` and ``uncertainty`` (the same bounds and wording as the
+    service's answer to the same value in a request).
 
     Raises
     ------
     OptionError
-        Pointers ``/uncertainty/method``, ``/uncertainty/level``, ``/uncertainty/replicates``,
-        ``/uncertainty/seed`` (relative to the options document).
+        Pointers ``/threshold``, ``/uncertainty/level``, ``/uncertainty/replicates``,
+        ``/uncertainty/seed``.
     """
-    problems: list[Problem | None] = []
-    if options.method not in METHODS:
-        problems.append(
-            Problem(
-                "/uncertainty/method",
-                f"unknown method {options.method!r}; choose from {METHODS}",
-            )
-        )
-    problems.append(_level_problem(options.level))
-    if options.method == "bootstrap":
-        problems.append(_replicates_problem(options.replicates))
-        problems.append(_seed_problem(options.seed))
-        if input_kind is not None and input_kind != "table":
-            problems.append(
-                Problem(
-                    "/uncertainty/method",
-                    f"the bootstrap resamples rows, and a {input_kind} input has none; send the "
-                    "rows, or use method 'normal'",
-                )
-            )
-    _raise(problems)
+    document: dict[str, object] = {"method": method, "level": _plain(level)}
+    if replicates is not None:
+        document["replicates"] = _plain(replicates)
+    if seed is not None:
+        document["seed"] = _plain(seed)
+    try:
+        contract_check_options({"threshold": _plain(threshold), "uncertainty": document})
+    except OptionsError as exc:
+        where = exc.pointer.removeprefix("/options")
+        raise OptionError(exc.reason, [Problem(where, exc.reason)]) from None
 
 
 # --------------------------------------------------------------------------------------------
@@ -1096,7 +1019,7 @@ def normal_intervals(
        coefficient. Proceedings of the Royal Society of London A 121, 654-673.
     .. [2] Muirhead, R. J. (1982). Aspects of Multivariate Statistical Theory. Wiley, ch. 5.
     """
-    _raise([_level_problem(level), _threshold_problem(threshold)])
+    _check_settings(threshold=threshold, level=level)
     if not _is_whole(p) or int(p) < 1:
         raise InputError.at("/p", f"p must be a whole number >= 1; got {p!r}")
     p = int(p)
@@ -1598,13 +1521,8 @@ def bootstrap_intervals(
     .. [2] Fox, J. and Monette, G. (1992). Generalized collinearity diagnostics. Journal of
        the American Statistical Association 87(417), 178-183.
     """
-    _raise(
-        [
-            _level_problem(level),
-            _replicates_problem(replicates),
-            _seed_problem(seed),
-            _threshold_problem(threshold),
-        ]
+    _check_settings(
+        threshold=threshold, level=level, replicates=replicates, seed=seed, method="bootstrap"
     )
     arr, w, names_t = _design(x, names, weights)
     n, p = arr.shape
@@ -1699,6 +1617,7 @@ def bootstrap_intervals(
             if not has_aliased and infl.max() < near and (scaled.size == 0 or scaled.max() < near):
                 same_kept[b0 + j] = len(kept_full) == len(units)
                 continue
+            checkpoint()  # a removal sequence per replicate: the stop applies between them
             try:
                 rem = removal_sequence(
                     r_b[j],
@@ -1775,7 +1694,7 @@ def bootstrap_intervals(
             lo_g, hi_g = math.exp(t_ends[0, c]), math.exp(t_ends[1, c])
             interval = (lo_g, hi_g)
             power = 1.0 / (2.0 * df[t])
-            scaled_interval = (lo_g**power, hi_g**power)
+            scaled_interval = (float(lo_g**power), float(hi_g**power))
             limit = math.log(threshold) * df[t]  # log of sqrt(threshold)^(2 df)
             share_t = float((lg_good[:, c] > limit).mean())
         term_out.append(
