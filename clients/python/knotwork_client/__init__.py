@@ -46,6 +46,8 @@ from ._results import (
     Tangle,
     Term,
     Tests,
+    Uncertainty,
+    UncertaintyOptions,
     Variable,
 )
 from ._summary import Summary, merge_summaries, summarize
@@ -85,6 +87,8 @@ __all__ = [
     "Term",
     "Tests",
     "TransportError",
+    "Uncertainty",
+    "UncertaintyOptions",
     "Variable",
     "__version__",
     "merge_summaries",

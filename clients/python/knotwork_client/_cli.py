@@ -71,6 +71,17 @@ CSV_FIELDS = (
     "removal_drops",
     "warnings",
     "error",
+    # With --uncertainty (empty otherwise): the method, the worst variable's interval and its
+    # p-value (normal) or shares (bootstrap), the share of replicates keeping the proposed set,
+    # and each dropped unit's share of replicates (bootstrap).
+    "uncertainty",
+    "worst_vif_low",
+    "worst_vif_high",
+    "worst_p_value",
+    "worst_share_above",
+    "worst_share_dropped",
+    "kept_share",
+    "drop_shares",
 )
 
 
@@ -149,6 +160,17 @@ def _parser() -> argparse.ArgumentParser:
         help="summary (the service's default: O(p) of every section) or full (every table)",
     )
     p.add_argument("--sections", type=_names, help="comma-separated result sections")
+    p.add_argument(
+        "--uncertainty",
+        choices=("normal", "bootstrap"),
+        help=(
+            "intervals for every VIF: normal (exact under normal predictors) or bootstrap "
+            "(resampling rows; also the removal's stability; not with --summary-only)"
+        ),
+    )
+    p.add_argument("--level", type=float, help="level of the intervals (service default 0.95)")
+    p.add_argument("--replicates", type=int, help="bootstrap replicates (service default 1000)")
+    p.add_argument("--seed", type=int, help="bootstrap seed (service default 0)")
     p.add_argument("--parallel", type=int, default=4, help="requests in flight (default 4)")
     p.add_argument("--timeout", type=float, default=60.0, help="seconds per request")
     p.add_argument("--attempts", type=int, default=4, help="tries per request, retries included")
@@ -175,8 +197,20 @@ def _cli_defaults(args: argparse.Namespace) -> dict[str, Any]:
         "repair": args.repair,
         "detail": args.detail,
         "sections": args.sections,
+        "uncertainty": _uncertainty(args),
     }
     return {k: v for k, v in given.items() if v is not None}
+
+
+def _uncertainty(args: argparse.Namespace) -> dict[str, Any] | None:
+    settings = {"level": args.level, "replicates": args.replicates, "seed": args.seed}
+    given = {k: v for k, v in settings.items() if v is not None}
+    if args.uncertainty is None:
+        if given:
+            flags = ", ".join(f"--{k}" for k in given)
+            raise UsageError(f"{flags} set the intervals of --uncertainty; add --uncertainty")
+        return None
+    return {"method": args.uncertainty, **given}
 
 
 def _model(name: str, path: Path, settings: dict[str, Any]) -> Model:
@@ -246,9 +280,15 @@ def _collect(inputs: Sequence[str], cli: dict[str, Any]) -> list[Model]:
             raise UsageError(f"{path}: not a table file (.csv, .parquet, .arrow), folder or .json")
     for m in models:
         try:
-            normalize_options(m.options)
+            checked = normalize_options(m.options)
         except (TypeError, ValueError) as exc:
             raise UsageError(f"model {m.name!r}: {exc}") from None
+        method = (checked.get("uncertainty") or {}).get("method")
+        if m.summary_only and method == "bootstrap":
+            raise UsageError(
+                f"model {m.name!r}: the bootstrap resamples rows, and --summary-only sends "
+                "none; use --uncertainty normal, or send the rows"
+            )
     seen: dict[str, int] = {}
     for m in models:
         base = re.sub(r"[^A-Za-z0-9._-]+", "_", m.name) or "model"
@@ -362,8 +402,39 @@ def _screen(client: Client, model: Model) -> Outcome:
         "removal_drops": ";".join(str(s.get("drop")) for s in removal.get("steps") or []),
         "warnings": ";".join(str(w.get("code")) for w in doc.get("warnings") or []),
         "error": "",
+        **_uncertainty_columns(doc, worst),
     }
     return Outcome(model, status, report, row)
+
+
+def _uncertainty_columns(doc: dict[str, Any], worst: str | None) -> dict[str, Any]:
+    """The CSV's interval and share columns (empty without ``uncertainty`` in the answer)."""
+    record = doc.get("uncertainty")
+    if not isinstance(record, dict):
+        return {}
+    var: dict[str, Any] = next(
+        (v for v in doc.get("variables") or [] if v.get("name") == worst), {}
+    )
+    interval = var.get("vif_interval") or [None, None]
+    terms = doc.get("terms") or []
+    # A term's columns share its removal share: name the term once, not each column.
+    grouped = {c for t in terms if len(t.get("columns") or []) > 1 for c in t["columns"]}
+    units = [v for v in doc.get("variables") or [] if v.get("name") not in grouped]
+    shares = [
+        (str(u.get("name")), u.get("share_dropped"))
+        for u in [*units, *terms]
+        if u.get("share_dropped")
+    ]
+    return {
+        "uncertainty": record.get("method"),
+        "worst_vif_low": interval[0],
+        "worst_vif_high": interval[1],
+        "worst_p_value": var.get("threshold_p_value"),
+        "worst_share_above": var.get("share_above_threshold"),
+        "worst_share_dropped": var.get("share_dropped"),
+        "kept_share": record.get("share_same_kept"),
+        "drop_shares": ";".join(f"{name}={share:g}" for name, share in shares),
+    }
 
 
 class _Progress:

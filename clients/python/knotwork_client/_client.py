@@ -308,7 +308,10 @@ class Client(_BaseClient):
             For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``.
             Service options: ``threshold``, ``protect``, ``intercept``, ``missing``,
             ``repair``, ``sections``, ``ridge`` (``{"grid": [...]}``), ``components``
-            (``{"rule": ..., "limit": ...}``). ``encoding``: ``auto``, ``json`` or ``arrow``.
+            (``{"rule": ..., "limit": ...}``), ``uncertainty`` (``{"method": "normal" or
+            "bootstrap", "level": ..., "replicates": ..., "seed": ...}``, an
+            :class:`UncertaintyOptions`, or a bare method; the bootstrap needs rows, not a
+            summary). ``encoding``: ``auto``, ``json`` or ``arrow``.
 
         Raises
         ------

@@ -71,9 +71,14 @@ def _names(value: Any, option: str) -> list[str]:
 
 
 def _plain(value: Any) -> Any:
-    """numpy scalars (and lists of them) as the Python values the contract checks."""
+    """numpy scalars (and lists and mappings of them, and option Structs such as
+    :class:`~knotwork_contract.UncertaintyOptions`) as the Python values the contract checks."""
     if isinstance(value, np.generic):
         return value.item()
+    if isinstance(value, msgspec.Struct):
+        return _plain(msgspec.structs.asdict(value))
+    if isinstance(value, Mapping):
+        return {k: _plain(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
         return [_plain(v) for v in value]
     return value
@@ -84,7 +89,9 @@ def normalize_options(options: Mapping[str, Any]) -> dict[str, Any]:
 
     ``None`` values are dropped (the service's default applies). ``ridge`` is ``{"grid":
     [k, ...]}`` (a bare list is taken as the grid); ``components`` is ``{"rule": ...,
-    "limit": ...}`` (a bare string is taken as the rule); a single name may stand for a list.
+    "limit": ...}`` (a bare string is taken as the rule); ``uncertainty`` is ``{"method": ...,
+    "level": ..., "replicates": ..., "seed": ...}``, an :class:`UncertaintyOptions`, or a bare
+    method name; a single name may stand for a list.
 
     Raises
     ------
@@ -105,6 +112,9 @@ def normalize_options(options: Mapping[str, Any]) -> dict[str, Any]:
             out[key] = _plain(dict(value) if isinstance(value, Mapping) else {"grid": value})
         elif key == "components":
             out[key] = _plain(dict(value) if isinstance(value, Mapping) else {"rule": value})
+        elif key == "uncertainty":
+            # A bare method name stands for {"method": ...} with the other settings' defaults.
+            out[key] = _plain({"method": value} if isinstance(value, str) else value)
         else:
             out[key] = _plain(value)
     checked = check_options(out)

@@ -3,7 +3,8 @@
 The records of an answer are declared once, in :mod:`knotwork_contract` (the service's core
 builds the same types); this module names them for the client (``Variable`` is the contract's
 ``VariableInflation``, ``Term`` its ``TermInflation``, ``Component`` its ``Components`` and
-``ResultWarning`` its ``Notice``) and adds to :class:`Assessment` what needs pandas. Unknown
+``ResultWarning`` its ``Notice``; ``Uncertainty`` and the option Struct ``UncertaintyOptions``
+keep their names) and adds to :class:`Assessment` what needs pandas. Unknown
 fields are ignored on decoding, so a newer service may add fields without breaking an older
 client; a field an answer lacks takes the contract's default (a number NaN, a list empty, an
 optional part None). A VIF that is not finite (an aliased variable) arrives as ``None``
@@ -15,6 +16,7 @@ The ``to_frame()`` helpers need pandas (``pip install knotwork-client[pandas]``)
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from typing import Any
 
 import knotwork_contract
@@ -32,6 +34,8 @@ from knotwork_contract import (
     RidgePoint,
     Tangle,
     Tests,
+    Uncertainty,
+    UncertaintyOptions,
 )
 from knotwork_contract import Notice as ResultWarning
 from knotwork_contract import TermInflation as Term
@@ -54,6 +58,8 @@ __all__ = [
     "Tangle",
     "Term",
     "Tests",
+    "Uncertainty",
+    "UncertaintyOptions",
     "Variable",
 ]
 
@@ -81,19 +87,54 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
         return max((v.vif for v in self.variables if v.vif is not None), default=math.nan)
 
     def to_frame(self) -> Any:
-        """Per-variable table as a DataFrame indexed by name (``vif`` NaN when aliased)."""
+        """Per-variable table as a DataFrame indexed by name (``vif`` NaN when aliased).
+
+        With ``uncertainty`` in the answer it also has ``vif_low`` and ``vif_high`` (the ends
+        of ``vif_interval``), ``threshold_p_value`` (normal), ``share_above_threshold`` and
+        ``share_dropped`` (bootstrap); a value the method does not give is NaN.
+        """
         pd = _pandas()
-        return pd.DataFrame(
-            {
-                "vif": [_f(v.vif) for v in self.variables],
-                "tolerance": [_f(v.tolerance) for v in self.variables],
-                "r_squared": [_f(v.r_squared) for v in self.variables],
-                "se_inflation": [_f(v.se_inflation) for v in self.variables],
-                "above_threshold": [v.above_threshold for v in self.variables],
-                "aliased": [v.aliased for v in self.variables],
-            },
-            index=pd.Index([v.name for v in self.variables], name="name"),
-        )
+        vs = self.variables
+        columns: dict[str, list[Any]] = {
+            "vif": [_f(v.vif) for v in vs],
+            "tolerance": [_f(v.tolerance) for v in vs],
+            "r_squared": [_f(v.r_squared) for v in vs],
+            "se_inflation": [_f(v.se_inflation) for v in vs],
+            "above_threshold": [v.above_threshold for v in vs],
+            "aliased": [v.aliased for v in vs],
+        }
+        if self.uncertainty is not None:
+            columns["vif_low"] = [_end(v.vif_interval, 0) for v in vs]
+            columns["vif_high"] = [_end(v.vif_interval, 1) for v in vs]
+            columns["threshold_p_value"] = [_f(v.threshold_p_value) for v in vs]
+            columns["share_above_threshold"] = [_f(v.share_above_threshold) for v in vs]
+            columns["share_dropped"] = [_f(v.share_dropped) for v in vs]
+        return pd.DataFrame(columns, index=pd.Index([v.name for v in vs], name="name"))
+
+    def terms_frame(self) -> Any:
+        """Per-term table (multi-column terms) as a DataFrame indexed by term name.
+
+        Columns ``df``, ``gvif``, ``gvif_scaled``, ``above_threshold``, ``aliased``; with a
+        bootstrap ``uncertainty`` also ``gvif_low``, ``gvif_high``, ``gvif_scaled_low``,
+        ``gvif_scaled_high``, ``share_above_threshold`` and ``share_dropped``.
+        """
+        pd = _pandas()
+        ts = self.terms
+        columns: dict[str, list[Any]] = {
+            "df": [t.df for t in ts],
+            "gvif": [_f(t.gvif) for t in ts],
+            "gvif_scaled": [_f(t.gvif_scaled) for t in ts],
+            "above_threshold": [t.above_threshold for t in ts],
+            "aliased": [t.aliased for t in ts],
+        }
+        if self.uncertainty is not None:
+            columns["gvif_low"] = [_end(t.gvif_interval, 0) for t in ts]
+            columns["gvif_high"] = [_end(t.gvif_interval, 1) for t in ts]
+            columns["gvif_scaled_low"] = [_end(t.gvif_scaled_interval, 0) for t in ts]
+            columns["gvif_scaled_high"] = [_end(t.gvif_scaled_interval, 1) for t in ts]
+            columns["share_above_threshold"] = [_f(t.share_above_threshold) for t in ts]
+            columns["share_dropped"] = [_f(t.share_dropped) for t in ts]
+        return pd.DataFrame(columns, index=pd.Index([t.name for t in ts], name="term"))
 
     def removal_frame(self) -> Any:
         """The removal steps as a DataFrame indexed by step number, from 1.
@@ -146,3 +187,7 @@ FieldError = Problem
 
 def _f(value: float | None) -> float:
     return math.nan if value is None else float(value)
+
+
+def _end(interval: Sequence[float] | None, which: int) -> float:
+    return math.nan if interval is None else float(interval[which])

@@ -1,0 +1,226 @@
+"""options.uncertainty through the routes: JSON and binary bodies, reproducibility, bad input."""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+import numpy as np
+import pytest
+from bodies_and_problems import ARROW, JSON, PARQUET, arrow_stream, arrow_table, assert_problem
+from bodies_and_problems import parquet as parquet_body
+from numeric import assert_close_answers
+
+from knotwork_contract import REPLICATES_MAX, REPLICATES_MIN
+
+NEW_VARIABLE_FIELDS = (
+    "vif_interval",
+    "threshold_p_value",
+    "share_above_threshold",
+    "share_dropped",
+)
+NEW_TERM_FIELDS = (
+    "gvif_interval",
+    "gvif_scaled_interval",
+    "share_above_threshold",
+    "share_dropped",
+)
+
+
+def rows(n: int = 120, seed: int = 5) -> tuple[dict[str, list[float]], dict[str, list[str]]]:
+    """Generated rows: three related numeric columns, one free one, and a three-level label."""
+    rng = np.random.default_rng(seed)
+    z = rng.standard_normal((n, 3))
+    mixed = z[:, 0] + z[:, 1] + 0.6 * rng.standard_normal(n)
+    columns = {
+        "soil_ph": z[:, 0].tolist(),
+        "shade": z[:, 1].tolist(),
+        "frost_days": z[:, 2].tolist(),
+        "water_need": mixed.tolist(),
+    }
+    labels = {"bed": [("north", "south", "east")[i % 3] for i in range(n)]}
+    return columns, labels
+
+
+def table_body(options: dict[str, Any] | None = None) -> dict[str, Any]:
+    columns, labels = rows()
+    return {
+        "input": {"kind": "table", "columns": columns, "categorical": labels},
+        "options": {"sections": ["variables", "terms"], **(options or {})},
+    }
+
+
+def post(client: Any, body: Any) -> Any:
+    return client.post("/v1/assess", content=json.dumps(body), headers={"Content-Type": JSON})
+
+
+def test_without_the_option_every_field_is_as_before_and_the_new_ones_are_null(client) -> None:
+    plain = post(client, table_body()).json()
+    normal = post(client, table_body({"uncertainty": {"method": "normal"}})).json()
+    assert plain["uncertainty"] is None
+    for v in plain["variables"]:
+        assert all(v[f] is None for f in NEW_VARIABLE_FIELDS)
+    for t in plain["terms"]:
+        assert all(t[f] is None for f in NEW_TERM_FIELDS)
+    # The same computation with intervals added: every existing field identical (the same
+    # functions on the same input), only the new fields and the record differ.
+    strip_v = [{k: v[k] for k in v if k not in NEW_VARIABLE_FIELDS} for v in normal["variables"]]
+    assert strip_v == [
+        {k: v[k] for k in v if k not in NEW_VARIABLE_FIELDS} for v in plain["variables"]
+    ]
+    rest = {k: normal[k] for k in normal if k not in ("variables", "uncertainty")}
+    assert rest == {k: plain[k] for k in plain if k not in ("variables", "uncertainty")}
+
+
+def test_normal_intervals_for_rows_and_their_correlation_matrix(client) -> None:
+    columns, _ = rows()
+    names = list(columns)
+    x = np.column_stack([columns[c] for c in names])
+    options = {"sections": ["variables"], "uncertainty": {"method": "normal", "level": 0.9}}
+    table = post(client, {"input": {"kind": "table", "columns": columns}, "options": options})
+    corr = {
+        "kind": "correlation",
+        "names": names,
+        "matrix": np.corrcoef(x, rowvar=False).tolist(),
+        "n": x.shape[0],
+    }
+    matrix = post(client, {"input": corr, "options": options})
+    assert table.status_code == matrix.status_code == 200, matrix.text
+    a, b = table.json(), matrix.json()
+    assert a["uncertainty"]["method"] == "normal" and a["uncertainty"]["level"] == 0.9
+    assert a["uncertainty"]["rank"] == 4 and a["uncertainty"]["n"] == 120
+    for v in a["variables"]:
+        low, high = v["vif_interval"]
+        assert low <= v["vif"] <= high and 0 <= v["threshold_p_value"] <= 1
+        assert v["share_above_threshold"] is None and v["share_dropped"] is None
+    # The same data as rows and as their correlation matrix: np.corrcoef against the service's
+    # moments kernel, rounding amplified through the root search: 1e-9.
+    assert_close_answers(a["variables"], b["variables"], rtol=1e-9, atol=1e-12)
+
+
+def test_bootstrap_in_json_arrow_and_parquet_is_the_same_answer(client) -> None:
+    options = {"uncertainty": {"method": "bootstrap", "replicates": 200, "seed": 7}}
+    body = table_body(options)
+    from_json = post(client, body)
+    assert from_json.status_code == 200, from_json.text
+    columns, labels = rows()
+    table = arrow_table(columns, labels)
+    query = (
+        "sections=variables,terms&uncertainty_method=bootstrap&uncertainty_replicates=200"
+        "&uncertainty_seed=7"
+    )
+    answers = [from_json.json()]
+    for media, content in ((ARROW, arrow_stream(table)), (PARQUET, parquet_body(table))):
+        response = client.post(
+            f"/v1/assess?{query}", content=content, headers={"Content-Type": media}
+        )
+        assert response.status_code == 200, response.text
+        answers.append(response.json())
+    doc = answers[0]
+    record = doc["uncertainty"]
+    assert (record["method"], record["replicates"], record["seed"]) == ("bootstrap", 200, 7)
+    assert record["usable_replicates"] + record["singular_replicates"] == 200
+    assert 0 <= record["share_same_kept"] <= 1 and record["kept"]
+    for v in doc["variables"]:
+        low, high = v["vif_interval"]
+        assert low <= high and 0 <= v["share_above_threshold"] <= 1
+        assert v["threshold_p_value"] is None
+    (bed,) = doc["terms"]
+    assert bed["gvif_interval"][0] <= bed["gvif_interval"][1]
+    # Another encoding of the same numbers: the decoders only convert them, and the same
+    # seed draws the same counts, so the answers agree to rounding of the summaries (1e-12).
+    for other in answers[1:]:
+        assert_close_answers(other, doc, rtol=1e-12, atol=1e-14)
+
+
+def test_the_same_seed_gives_the_same_bytes_and_another_seed_differs(client) -> None:
+    body = table_body({"uncertainty": {"method": "bootstrap", "replicates": 100, "seed": 3}})
+    first, again = post(client, body), post(client, body)
+    # The same request twice to one service: identical bytes.
+    assert first.content == again.content
+    body["options"]["uncertainty"]["seed"] = 4
+    other = post(client, body)
+    assert other.json()["variables"] != first.json()["variables"]
+
+
+def test_summary_detail_keeps_the_new_fields(client) -> None:
+    body = table_body({"uncertainty": {"method": "bootstrap", "replicates": 100}})
+    body["options"].pop("sections")
+    summary = post(client, body).json()
+    body["options"]["detail"] = "full"
+    full = post(client, body).json()
+    assert summary["detail"] == "summary"
+    assert summary["variables"] == full["variables"] and summary["terms"] == full["terms"]
+    assert summary["uncertainty"] == full["uncertainty"]
+
+
+CORRELATION = {"kind": "correlation", "names": ["a", "b"], "matrix": [[1, 0.5], [0.5, 1]], "n": 40}
+MOMENTS = {
+    "kind": "moments",
+    "names": ["a", "b"],
+    "n": 40,
+    "means": [0, 0],
+    "covariance": [[1, 0.5], [0.5, 1]],
+}
+
+
+# A value outside the contract's bounds is a request that does not fit the schema (400, as
+# for every option bound); the bootstrap on an input without rows fits the schema but not the
+# input (422, as for every cross-input rule).
+SCHEMA = (400, "invalid-request")
+CROSS = (422, "invalid-option")
+REPLICATES = "/options/uncertainty/replicates"
+
+
+@pytest.mark.parametrize(
+    ("inp", "uncertainty", "answer", "pointer"),
+    [
+        (None, {"level": 1.0}, SCHEMA, "/options/uncertainty/level"),
+        (None, {"level": 0}, SCHEMA, "/options/uncertainty/level"),
+        (None, {"replicates": REPLICATES_MIN - 1}, SCHEMA, REPLICATES),
+        (None, {"replicates": REPLICATES_MAX + 1}, SCHEMA, REPLICATES),
+        (None, {"replicates": 500.0}, SCHEMA, REPLICATES),
+        (None, {"seed": -1}, SCHEMA, "/options/uncertainty/seed"),
+        (None, {"method": "jackknife"}, SCHEMA, "/options/uncertainty/method"),
+        (None, {"samples": 5}, SCHEMA, "/options/uncertainty/samples"),
+        (CORRELATION, {"method": "bootstrap"}, CROSS, "/options/uncertainty/method"),
+        (MOMENTS, {"method": "bootstrap"}, CROSS, "/options/uncertainty/method"),
+    ],
+)
+def test_bad_uncertainty_options_name_the_field(
+    client, inp: Any, uncertainty: dict[str, Any], answer: tuple[int, str], pointer: str
+) -> None:
+    body = table_body({"uncertainty": uncertainty})
+    if inp is not None:
+        body["input"] = inp
+    doc = assert_problem(post(client, body), *answer, pointer)
+    if "method" in uncertainty and inp is not None:
+        assert "the bootstrap resamples rows" in doc["errors"][0]["reason"]
+
+
+def test_bad_query_parameters_name_the_parameter(client) -> None:
+    columns, _ = rows()
+    content = arrow_stream(arrow_table(columns))
+    for query, parameter in (
+        ("uncertainty_replicates=500.5", "uncertainty_replicates"),
+        ("uncertainty_seed=1e3", "uncertainty_seed"),
+        ("uncertainty_level=1.5", "uncertainty_level"),
+        ("uncertainty_method=jackknife", "uncertainty_method"),
+    ):
+        response = client.post(
+            f"/v1/assess?{query}", content=content, headers={"Content-Type": ARROW}
+        )
+        problem = response.json()
+        assert response.status_code in (400, 422), response.text
+        assert problem["errors"][0]["pointer"] == f"/query/{parameter}", problem
+
+
+def test_bootstrap_with_pairwise_deletion_of_missing_values_is_refused(client) -> None:
+    body = table_body({"uncertainty": {"method": "bootstrap"}, "missing": "pairwise"})
+    body["input"]["columns"]["shade"][4] = None
+    doc = assert_problem(post(client, body), 422, "invalid-option", "/options/uncertainty/method")
+    assert "drop_rows" in doc["errors"][0]["reason"]
+    body["options"]["missing"] = "drop_rows"
+    answer = post(client, body)
+    assert answer.status_code == 200, answer.text
+    assert answer.json()["n"] == 119
