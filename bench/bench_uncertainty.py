@@ -34,7 +34,8 @@ from scipy import optimize
 from threadpoolctl import threadpool_limits
 
 import knotwork.core._uncertainty as unc
-from knotwork.core import assess, from_table
+from knotwork.core import Options, assess, design_from_table, from_table
+from knotwork_contract import UncertaintyOptions
 
 SIGMA = np.array(
     [
@@ -54,6 +55,13 @@ def design(n: int, p: int, noise: float, seed: int) -> np.ndarray:
 
 def plain(x: np.ndarray) -> object:
     return assess(from_table({f"x{j}": x[:, j] for j in range(x.shape[1])}))
+
+
+def wired(x: np.ndarray, uncertainty: UncertaintyOptions) -> object:
+    """The whole assessment with ``options.uncertainty``, as the service runs it: the summary
+    and the design's rows from the columns, then assess()."""
+    summary, rows = design_from_table({f"x{j}": x[:, j] for j in range(x.shape[1])})
+    return assess(summary, Options(uncertainty=uncertainty), rows)
 
 
 def brent_one_at_a_time(vifs: np.ndarray, n: int, p: int, level: float = 0.95) -> np.ndarray:
@@ -88,9 +96,12 @@ def bench_bootstrap(repeat: int) -> None:
     result = unc.bootstrap_intervals(x, names, replicates=reps, seed=1)
     t_boot = best(lambda: unc.bootstrap_intervals(x, names, replicates=reps, seed=1), repeat)
     t_plain = best(lambda: plain(x), max(repeat, 3))
+    ask = UncertaintyOptions(method="bootstrap", replicates=reps, seed=1)
+    t_wired = best(lambda: wired(x, ask), repeat)
     top = max(v.vif for v in result.variables if v.vif is not None)
     print(f"bootstrap  n={n:,} p={p} replicates={reps} (largest VIF {top:.2f})")
     print(f"  bootstrap_intervals      {t_boot:8.3f} s   goal 2 s")
+    print(f"  assess() with bootstrap  {t_wired:8.3f} s   (rows kept, every section)")
     print(f"  assess() default options {t_plain:8.3f} s   ratio {t_boot / t_plain:7.1f}x")
     print(
         f"  usable {result.usable_replicates}, kept set as proposed in "
@@ -134,9 +145,14 @@ def bench_normal(n: int, p: int, repeat: int, brent: bool, noise: float = 3.0) -
     vifs = np.array([v.vif for v in a.variables], dtype=float)
     t_norm = best(lambda: unc.normal_intervals(vifs, n, p), repeat)
     t_plain = best(lambda: plain(x), repeat)
+    t_wired = best(lambda: wired(x, UncertaintyOptions(method="normal")), repeat)
     print(f"normal     n={n:,} p={p} (VIF median {np.median(vifs):.2f}, max {vifs.max():.1f})")
     goal = "   goal 50 ms" if p == 200 else ""
     print(f"  normal_intervals         {t_norm * 1e3:8.1f} ms{goal}")
+    print(
+        f"  assess() with normal     {t_wired * 1e3:8.1f} ms   extra over plain "
+        f"{(t_wired - t_plain) * 1e3:6.1f} ms"
+    )
     print(f"  assess() default options {t_plain * 1e3:8.1f} ms   ratio {t_norm / t_plain:6.2f}x")
     if brent:
         got = np.array([v.vif_interval for v in unc.normal_intervals(vifs, n, p).variables])
