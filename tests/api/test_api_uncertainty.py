@@ -224,3 +224,42 @@ def test_bootstrap_with_pairwise_deletion_of_missing_values_is_refused(client) -
     answer = post(client, body)
     assert answer.status_code == 200, answer.text
     assert answer.json()["n"] == 119
+
+
+def test_a_small_bootstrap_request_runs_on_the_pool_under_the_time_limit() -> None:
+    # A small JSON body asking only for variables would be answered on the event loop; with
+    # uncertainty it goes to the pool, whose time limit stops the replicates (503 time-limit).
+    from litestar.testing import TestClient
+
+    from knotwork.api import create_app
+    from knotwork.settings import Settings
+
+    columns, _ = rows(40)
+    body = {
+        "input": {"kind": "table", "columns": columns},
+        "options": {
+            "sections": ["variables"],
+            "uncertainty": {"method": "bootstrap", "replicates": REPLICATES_MAX},
+        },
+    }
+    assert len(json.dumps(body)) < 16 * 1024
+    settings = Settings(concurrency=1, request_timeout_s=0.05)
+    with TestClient(create_app(settings)) as slow:
+        assert_problem(post(slow, body), 503, "time-limit", None)
+        # Without the option the same body is answered at once.
+        body["options"].pop("uncertainty")
+        assert post(slow, body).status_code == 200
+
+
+def test_uncertainty_without_an_intercept_is_refused_naming_the_option(client) -> None:
+    body = table_body({"uncertainty": {"method": "normal"}, "intercept": False})
+    doc = assert_problem(post(client, body), 422, "invalid-option", "/options/uncertainty")
+    assert "centred VIFs" in doc["errors"][0]["reason"]
+    # From a binary body the pointer names a query parameter of the option.
+    columns, _ = rows()
+    response = client.post(
+        "/v1/assess?intercept=false&uncertainty_method=normal",
+        content=arrow_stream(arrow_table(columns)),
+        headers={"Content-Type": ARROW},
+    )
+    assert_problem(response, 422, "invalid-option", "/query/uncertainty_method")

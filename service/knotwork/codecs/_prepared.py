@@ -64,6 +64,11 @@ class MomentsData:
 # in the query (the contract derives them from the Structs).
 _OPTION_PARAMETERS = {"/".join(p.path): p.name for p in QUERY_PARAMETERS if p.path[0] != "input"}
 _INPUT_PARAMETERS = tuple(p.path[1] for p in QUERY_PARAMETERS if p.path[0] == "input")
+# A pointer to a whole nested option (``/uncertainty``) names its first parameter.
+_GROUP_PARAMETERS: dict[str, str] = {}
+for _p in QUERY_PARAMETERS:
+    if _p.path[0] != "input":
+        _GROUP_PARAMETERS.setdefault(_p.path[0], _p.name)
 
 
 @dataclass(frozen=True, slots=True)
@@ -92,7 +97,8 @@ class Origin:
             if not tokens:
                 return "/query"
             key = "/".join(tokens[:2])
-            return join("query", _OPTION_PARAMETERS.get(key, tokens[0]))
+            name = _OPTION_PARAMETERS.get(key) or _GROUP_PARAMETERS.get(tokens[0], tokens[0])
+            return join("query", name)
         if tokens and tokens[0] in _INPUT_PARAMETERS:
             return join("query", tokens[0])
         return pointer
