@@ -263,3 +263,19 @@ def test_uncertainty_without_an_intercept_is_refused_naming_the_option(client) -
         headers={"Content-Type": ARROW},
     )
     assert_problem(response, 422, "invalid-option", "/query/uncertainty_method")
+
+
+def test_query_parameters_of_the_nested_option_round_trip() -> None:
+    from knotwork_contract import SEED_MAX, options_query, parse_query
+
+    options = {"uncertainty": {"method": "bootstrap", "level": 0.9, "replicates": 250,
+                               "seed": SEED_MAX}}  # fmt: skip
+    query = options_query(options)
+    assert query == {
+        "uncertainty_method": "bootstrap",
+        "uncertainty_level": "0.9",
+        "uncertainty_replicates": "250",
+        "uncertainty_seed": str(SEED_MAX),  # whole numbers keep every digit (no float)
+    }
+    document, columns = parse_query(query.items())
+    assert document == options and columns == {}
