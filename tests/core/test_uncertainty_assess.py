@@ -17,6 +17,7 @@ from scipy import stats
 
 from knotwork.core import (
     Interrupted,
+    KnotworkError,
     Options,
     assess,
     bootstrap_intervals,
@@ -195,3 +196,34 @@ def test_p_value_is_in_the_answer_for_a_vif_at_the_threshold() -> None:
     result = normal_intervals([5.0], 100, 3, threshold=5.0)
     assert 0.5 < result.variables[0].p_value < 1.0
     assert math.isfinite(result.variables[0].vif_interval[1])
+
+
+def test_tiny_tables_give_an_answer_or_a_named_error_never_a_crash() -> None:
+    # Found by the contract fuzzer: six rows with a three-level label, where a resampled
+    # correlation matrix passed its Cholesky factor and then failed to invert. Such replicates
+    # are singular (counted and left out), never an exception.
+    columns = {
+        "a": np.array([1.0, 2, 3, 4, 5, 6]),
+        "b": np.array([2.0, 1, 4, 3, 6, 5.5]),
+        "c": np.array([1.0, 3, 2, 5, 4, 7]),
+    }
+    summary, rows = design_from_table(columns, categorical={"g": list("xyxyxz")})
+    unc = UncertaintyOptions(method="bootstrap", replicates=200)
+    a = assess(summary, Options(uncertainty=unc), rows)
+    assert a.uncertainty is not None
+    assert a.uncertainty.usable_replicates + a.uncertainty.singular_replicates == 200
+    # Random small tables with rounded values, copies and rare levels.
+    for seed in range(30):
+        rng = np.random.default_rng(seed)
+        n, p = int(rng.integers(3, 14)), int(rng.integers(1, 4))
+        cols = {
+            f"x{j}": np.round(rng.standard_normal(n), int(rng.integers(0, 3))) for j in range(p)
+        }
+        labels = {"g": [str(v) for v in rng.choice(list("xyz"), n, p=[0.6, 0.3, 0.1])]}
+        for method in ("bootstrap", "normal"):
+            try:
+                s, r = design_from_table(cols, categorical=labels)
+                options = Options(uncertainty=UncertaintyOptions(method=method, replicates=100))
+                assess(s, options, r)
+            except KnotworkError:
+                pass  # a named error (too few rows, a constant label): the answer is a 4xx

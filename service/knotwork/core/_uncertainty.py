@@ -1374,26 +1374,30 @@ def _correlations(com: np.ndarray) -> np.ndarray:
 
 
 def _replicate_inflation(
-    r: np.ndarray, keep: np.ndarray, term_sets: Sequence[tuple[np.ndarray, np.ndarray]]
+    r: np.ndarray,
+    keep: np.ndarray,
+    term_sets: Sequence[tuple[np.ndarray, np.ndarray]],
+    skip: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """VIFs (B, |keep|), log GVIFs (B, terms) and a singular mask (B,) of a block.
 
     The VIFs come from the correlation matrix over the full sample's independent predictors;
-    a replicate is singular when that matrix is not positive definite, or has an exact
+    a replicate is singular when it is in ``skip`` (a column constant in the resample), when
+    that matrix is not positive definite or cannot be inverted, or when it has an exact
     dependency by the core's rule (smallest eigenvalue at or below ``NULL_RTOL`` times the
     largest; checked only where the bound trace(R^-1) * max row sum says it may).
     """
     rk = r[:, keep][:, :, keep]
     b = rk.shape[0]
-    singular = np.zeros(b, dtype=bool)
+    singular = np.zeros(b, dtype=bool) if skip is None else skip.copy()
     vif = np.full((b, keep.shape[0]), np.nan)
     logdet = np.full(b, np.nan)
+    ok = np.flatnonzero(~singular)
     try:
-        chol = np.linalg.cholesky(rk)
-        ok = np.arange(b)
+        chol = np.linalg.cholesky(rk[ok])
     except np.linalg.LinAlgError:
         good = []
-        for j in range(b):
+        for j in ok:
             try:
                 np.linalg.cholesky(rk[j])
                 good.append(j)
@@ -1402,14 +1406,30 @@ def _replicate_inflation(
         ok = np.asarray(good, dtype=np.intp)
         chol = np.linalg.cholesky(rk[ok]) if ok.size else np.zeros((0, *rk.shape[1:]))
     if ok.size:
-        inv = np.linalg.inv(rk[ok])
+        try:
+            inv = np.linalg.inv(rk[ok])
+        except np.linalg.LinAlgError:
+            # A factor with a pivot that rounds to a singular matrix: one at a time.
+            kept_q, parts = [], []
+            for pos, j in enumerate(ok):
+                try:
+                    parts.append(np.linalg.inv(rk[j]))
+                    kept_q.append(pos)
+                except np.linalg.LinAlgError:
+                    singular[j] = True
+            ok, chol = ok[kept_q], chol[kept_q]
+            inv = np.stack(parts) if parts else np.zeros((0, *rk.shape[1:]))
+    if ok.size:
         diag = np.diagonal(inv, axis1=1, axis2=2)
+        bad = ~np.isfinite(diag).all(axis=1)
+        singular[ok[bad]] = True
         bound = np.abs(rk[ok]).sum(axis=2).max(axis=1) * diag.sum(axis=1) * NULL_RTOL
-        for q in np.flatnonzero(bound >= 1.0):  # rare: only near an exact dependency
+        for q in np.flatnonzero(~bad & (bound >= 1.0)):  # rare: only near an exact dependency
             ev = np.linalg.eigvalsh(rk[ok[q]])
             if ev[0] <= NULL_RTOL * ev[-1]:
                 singular[ok[q]] = True
-        vif[ok] = np.maximum(diag, 1.0)
+        with np.errstate(invalid="ignore"):
+            vif[ok] = np.maximum(diag, 1.0)
         logdet[ok] = 2.0 * np.log(np.diagonal(chol, axis1=1, axis2=2)).sum(axis=1)
     log_gvif = np.full((b, len(term_sets)), np.nan)
     for t, (cols, others) in enumerate(term_sets):
@@ -1603,8 +1623,8 @@ def bootstrap_intervals(
         sums = sampler.sums(counts)
         com_b, constant = sampler.moments(sums)
         r_b = _correlations(com_b)
-        vif_b, lg_b, sing_b = _replicate_inflation(r_b, keep, term_sets)
-        sing_b |= constant.any(axis=1)
+        skip = np.asarray(constant.any(axis=1), dtype=bool)
+        vif_b, lg_b, sing_b = _replicate_inflation(r_b, keep, term_sets, skip)
         vifs[b0:b1] = vif_b
         log_gvifs[b0:b1] = lg_b
         singular[b0:b1] = sing_b
@@ -1627,7 +1647,8 @@ def bootstrap_intervals(
                     terms=term_idx,
                     tables=False,
                 )
-            except KnotworkError:
+            except (KnotworkError, np.linalg.LinAlgError):
+                # A resample the full-sample checks could not foresee (near singular).
                 singular[b0 + j] = True
                 continue
             for step in rem.steps:
