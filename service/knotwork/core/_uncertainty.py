@@ -1553,6 +1553,7 @@ def bootstrap_intervals(
     xc = arr - shift
     xw = xc if w is None else xc * w[:, None]
     com = xw.T @ xc
+    del xc, xw  # the resampler keeps its own shifted copy: two copies of the design at most
     com = 0.5 * (com + com.T)
     d = np.sqrt(np.maximum(np.diag(com), np.finfo(float).tiny))
     corr = com / np.outer(d, d)
