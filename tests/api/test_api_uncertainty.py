@@ -279,3 +279,22 @@ def test_query_parameters_of_the_nested_option_round_trip() -> None:
     }
     document, columns = parse_query(query.items())
     assert document == options and columns == {}
+
+
+@pytest.mark.parametrize(
+    ("uncertainty", "kept"),
+    [(None, False), ({"method": "normal"}, False), ({"method": "bootstrap"}, True)],
+)
+def test_the_rows_are_kept_for_the_bootstrap_only(uncertainty: Any, kept: bool) -> None:
+    from knotwork.codecs import Limits, decode_assess
+    from knotwork.codecs._convert import summarize, summarize_with_rows
+
+    body = table_body({"uncertainty": uncertainty} if uncertainty else None)
+    prepared = decode_assess(json.dumps(body).encode(), Limits())
+    summary, design = summarize_with_rows(prepared)
+    assert (design is not None) == kept
+    if design is not None:
+        assert design.names == summary.names and design.x.shape == (120, summary.p)
+    # The same summary either way (the same kernel on the same columns).
+    plain = summarize(prepared)
+    assert summary.names == plain.names and np.array_equal(summary.correlation, plain.correlation)
