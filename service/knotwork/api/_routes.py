@@ -94,7 +94,9 @@ class Readiness(msgspec.Struct, frozen=True, kw_only=True):
 
 
 def _media_type(request: Request[Any, Any, Any], accepted: tuple[str, ...]) -> str:
-    media = request.content_type[0].lower()
+    # The raw header from the scope: litestar's parsed view builds a header map per access.
+    raw = next((v for k, v in request.scope["headers"] if k == b"content-type"), b"")
+    media = raw.decode("latin-1").partition(";")[0].strip().lower()
     if media in accepted:
         return media
     given = media or "none"

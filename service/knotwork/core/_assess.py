@@ -19,7 +19,13 @@ from knotwork_contract import check_options as contract_check_options
 
 from ._components import LIMIT_WITH_VIF_THRESHOLD, VIF_THRESHOLD, principal_components
 from ._conditioning import condition_diagnostics
-from ._dependencies import DependencyReport, Spectrum, find_dependencies
+from ._dependencies import (
+    NEAR_SINGULAR_RTOL,
+    DependencyReport,
+    Spectrum,
+    clearly_regular_inverse,
+    find_dependencies,
+)
 from ._errors import OptionError, Problem
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
@@ -34,6 +40,9 @@ from ._summary import Summary
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
 _LARGE_N = 10_000
+#: Sections that read the eigen-decomposition of the predictors' matrix; without them a matrix
+#: that is provably far from singular needs none (see ``clearly_regular_inverse``).
+_SPECTRAL = ("conditioning", "tests", "removal", "ridge", "components", "comparison")
 
 
 @dataclass(frozen=True, slots=True)
@@ -181,13 +190,18 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         assert cos is not None
         matrix = cos[:p, :p]
         r_xy = cos[:p, p] if summary.response is not None else None
-    spectrum = Spectrum.of(matrix)
-    deps: DependencyReport = find_dependencies(
-        spectrum,
-        names,
-        sds=summary.sds if options.intercept else None,
-        means=summary.predictor_means if options.intercept else None,
-    )
+    inverse = None if any(map(options.wants, _SPECTRAL)) else clearly_regular_inverse(matrix)
+    spectrum: Spectrum | None = None
+    if inverse is None:
+        spectrum = Spectrum.of(matrix)
+        deps: DependencyReport = find_dependencies(
+            spectrum,
+            names,
+            sds=summary.sds if options.intercept else None,
+            means=summary.predictor_means if options.intercept else None,
+        )
+    else:
+        deps = DependencyReport.none(p)
     if deps.relations:
         aliased = [names[j] for j in np.flatnonzero(deps.involved)]
         notes.append(
@@ -197,7 +211,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
                 f"{', '.join(aliased)}: their VIFs are infinite (reported as null, aliased)",
             )
         )
-    elif spectrum.values[-1] < 1e-8 * spectrum.values[0]:
+    elif spectrum is not None and spectrum.values[-1] < NEAR_SINGULAR_RTOL * spectrum.values[0]:
         notes.append(
             notice(
                 "near_singular",
@@ -205,7 +219,9 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
                 "near-singular, results are sensitive to small changes in the data",
             )
         )
-    variables = variance_inflation(matrix, names, threshold=options.threshold, dependencies=deps)
+    variables = variance_inflation(
+        matrix, names, threshold=options.threshold, dependencies=deps, inverse=inverse
+    )
     terms: tuple[TermInflation, ...] = ()
     if options.wants("terms") and summary.terms:
         terms = generalized_inflation(
@@ -328,7 +344,7 @@ def _conditioning(
     summary: Summary,
     options: Options,
     matrix: np.ndarray,
-    spectrum: Spectrum,
+    spectrum: Spectrum | None,
     notes: list[Notice],
 ) -> Conditioning:
     cross = summary.design_crossproducts(options.intercept)
