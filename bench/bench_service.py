@@ -16,8 +16,9 @@ starts local servers on free 127.0.0.1 ports and prints, side by side:
 the service's rate against both the bare app and plain litestar.
 
 Goals: (c) Arrow within 1.3 x (a) + (b); JSON decoding at least 150 MB/s; (d) the service at
-least 0.35 x the bare app's rate and at least half of plain litestar's. The machine is shared, so each figure is a
-median of several runs; compare ratios within one run, not figures across runs.
+least 0.35 x the bare app's rate and at least half of plain litestar's. The machine is
+shared, so each figure is a median of several runs; compare ratios within one run, not
+figures across runs.
 """
 
 from __future__ import annotations
