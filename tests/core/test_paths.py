@@ -277,3 +277,18 @@ def test_variables_alone_still_warn_of_near_singularity() -> None:
     codes = {w.code for w in assess(summary, Options(sections=["variables"])).warnings}
     assert "near_singular" in codes
     assert codes == {w.code for w in assess(summary).warnings} & codes
+
+
+def test_summary_depth_computes_what_the_summary_keeps(longley: pd.DataFrame) -> None:
+    # Options(detail="summary") skips the p x p tables instead of building and dropping them;
+    # every value a summary keeps comes from the same computation, so the encoded answers are
+    # the same bytes (identical code path for the kept values, no tolerance needed).
+    import msgspec
+
+    from knotwork.core import summary_detail
+
+    rows = from_frame(longley, response="TOTEMP")
+    dropped = summary_detail(assess(rows))
+    skipped = summary_detail(assess(rows, Options(detail="summary")))
+    assert msgspec.json.encode(skipped) == msgspec.json.encode(dropped)
+    assert skipped.removal is not None and skipped.removal.alternative is None

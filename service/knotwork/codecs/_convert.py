@@ -32,6 +32,7 @@ def core_options(options: AssessOptions) -> Options:
         intercept=options.intercept,
         sections=tuple(options.sections) if options.sections is not None else None,
         ridge_grid=tuple(ridge.grid) if ridge is not None and ridge.grid is not None else None,
+        detail=options.detail,
     )
     components = options.components
     if components is not None:

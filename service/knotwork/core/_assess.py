@@ -74,6 +74,11 @@ class Options:
         A tangle is a component with condition index above ``index_threshold`` and two or more
         variance-decomposition proportions above ``proportion_threshold`` (common practice
         after Belsley, Kuh & Welsch: 30 and 0.5).
+    detail
+        ``"full"`` (default) builds every table; ``"summary"`` leaves out the p x p tables
+        that :func:`summary_detail` drops (proportions, partial-correlation tables, component
+        loadings, per-step VIF vectors and the second removal ordering), so they are not
+        computed only to be thrown away. Everything a summary keeps is computed the same way.
     """
 
     threshold: float = 5.0
@@ -85,9 +90,15 @@ class Options:
     components_limit: float | None = None
     index_threshold: float = 30.0
     proportion_threshold: float = 0.5
+    detail: str = "full"
 
     def wants(self, section: str) -> bool:
         return self.sections is None or section in self.sections
+
+    @property
+    def tables(self) -> bool:
+        """Whether the p x p tables are wanted (the full detail)."""
+        return self.detail == "full"
 
 
 def _wire_document(options: Options) -> dict[str, object]:
@@ -250,7 +261,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     tests = None
     if options.wants("tests"):
         tests = collinearity_tests(
-            matrix, summary.n, names, [v.vif for v in variables], spectrum=spectrum
+            matrix,
+            summary.n,
+            names,
+            [v.vif for v in variables],
+            spectrum=spectrum,
+            tables=options.tables,
         )
         if summary.n > _LARGE_N:
             notes.append(
@@ -273,6 +289,8 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             terms=summary.term_indices(),
             dependencies=deps,
             r_xy=r_xy,
+            tables=options.tables,
+            alternative=options.tables,
         )
     checkpoint()
     # The remedies' regression; coefficients in original units for centred models only.
@@ -305,6 +323,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             limit=options.components_limit,
             threshold=options.threshold,
             spectrum=spectrum,
+            tables=options.tables,
         )
     checkpoint()
     if wants_comparison:
@@ -357,6 +376,7 @@ def _conditioning(
             basis,
             index_threshold=options.index_threshold,
             proportion_threshold=options.proportion_threshold,
+            tables=options.tables,
         )
     else:
         result = condition_diagnostics(
@@ -366,6 +386,7 @@ def _conditioning(
             index_threshold=options.index_threshold,
             proportion_threshold=options.proportion_threshold,
             spectrum=spectrum,
+            tables=options.tables,
         )
         notes.append(
             notice(

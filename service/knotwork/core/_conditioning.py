@@ -25,8 +25,12 @@ def condition_diagnostics(
     proportion_threshold: float = 0.5,
     null_rtol: float = NULL_RTOL,
     spectrum: Spectrum | None = None,
+    tables: bool = True,
 ) -> Conditioning:
     """Condition indices and variance-decomposition proportions from a cross-product matrix.
+
+    ``tables=False`` leaves the (m x m) proportions table out (empty); the high-index rows and
+    the tangles, built from the same shares, stay.
 
     Parameters
     ----------
@@ -141,8 +145,10 @@ def condition_diagnostics(
     phi[:, live] = vectors[:, live] ** 2 / values[live]
     shares = phi / phi.sum(axis=1, keepdims=True)
     # Rows follow the components; tolist() converts a whole row at C speed.
-    by_component = shares.T.tolist()
-    proportions = tuple(tuple(by_component[k]) if live[k] else (None,) * m for k in range(m))
+    proportions: tuple[tuple[float | None, ...], ...] = ()
+    if tables:
+        by_component = shares.T.tolist()
+        proportions = tuple(tuple(by_component[k]) if live[k] else (None,) * m for k in range(m))
 
     tangles = []
     for k in range(m):
