@@ -19,6 +19,7 @@ from ._errors import InputError, MatrixError, Problem, TooFewDataError
 from ._linalg import inverse_spd
 from ._summary import INTERCEPT_NAME, Summary
 from ._validation import (
+    MATRIX_ATOL,
     REPAIR_POLICIES,
     check_names,
     check_policy,
@@ -176,13 +177,18 @@ def from_estimates(
             for j in bad
         ]
         raise MatrixError(problems[0].reason, problems)
+    # Scaled one side at a time, so that tiny variances cannot underflow a product d_i d_j to
+    # zero; an entry far above its variances overflows to infinity and is refused below.
     d = np.sqrt(variances)
-    v = check_symmetric(v, "/covariance", d)
-    c = v / np.outer(d, d)
-    np.fill_diagonal(c, 1.0)
-    outside = np.argwhere(np.abs(c) > 1.0 + 1e-9)
+    with np.errstate(over="ignore", under="ignore"):
+        c = (v / d[:, None]) / d[None, :]
+    outside = np.argwhere(~np.isfinite(c))
+    if not outside.size:
+        c = check_symmetric(c, "/covariance")
+        np.fill_diagonal(c, 1.0)
+        outside = np.argwhere(np.abs(c) > 1.0 + MATRIX_ATOL)
     if outside.size:
-        i, j = (int(k) for k in outside[0])
+        i, j = sorted(int(k) for k in outside[0])
         raise MatrixError.at(
             f"/covariance/{i}/{j}",
             f"the covariance of {all_names[i]!r} and {all_names[j]!r} exceeds the square root "
