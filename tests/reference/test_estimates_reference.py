@@ -154,7 +154,7 @@ def test_ols_without_intercept_gives_the_uncentred_vifs() -> None:
 def test_spector_logit_vifs() -> None:
     # Source: statsmodels GLM (binomial, logit) of GRADE on GPA, TUCE and PSI with a constant;
     # Fox & Monette's VIFs from its cov_params(), computed here. Check values 1.188155,
-    # 1.078527, 1.148729 (to six decimals) as given in the issue for this fit. The independent
+    # 1.078527, 1.148729 (docs/numerics.md, Check values, GLM weighted VIFs). The independent
     # computation inverts the same well-conditioned 3 x 3 correlation (cond < 2) once, ours
     # twice: 1e-8 relative is far above that rounding.
     result = _logit_glm()
