@@ -272,10 +272,12 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
 
     checkpoint()
     removal = ridge = components = comparison = None
-    wants_comparison = options.wants("comparison")
+    # Ridge, components and the comparison need the response's correlations (or rows).
+    remedies = not estimates
+    wants_ridge = remedies and options.wants("ridge")
+    wants_components = remedies and options.wants("components")
+    wants_comparison = remedies and options.wants("comparison")
     if estimates:
-        # Ridge, components and the comparison need the response's correlations (or rows);
-        # a fitted model's estimates carry neither.
         skipped = [s for s in ("ridge", "components", "comparison") if options.wants(s)]
         if skipped:
             notes.append(
@@ -285,7 +287,6 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
                     "estimates of a fitted model carry neither; send rows or moments for them",
                 )
             )
-        wants_comparison = False
     if options.wants("removal") or wants_comparison:
         removal = removal_sequence(
             matrix,
@@ -299,9 +300,6 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     checkpoint()
     # The remedies' regression; coefficients in original units for centred models only.
     centred = options.intercept
-    wants = options.wants
-    if estimates:
-        wants = _none
     regression = Regression(
         n=summary.n,
         intercept=options.intercept,
@@ -311,7 +309,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         means=summary.predictor_means if centred else None,
         response_mean=summary.response_mean if centred else None,
     )
-    if wants("ridge") or wants_comparison:
+    if wants_ridge or wants_comparison:
         ridge = ridge_analysis(
             matrix,
             names,
@@ -321,7 +319,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             spectrum=spectrum,
         )
     checkpoint()
-    if wants("components") or wants_comparison:
+    if wants_components or wants_comparison:
         components = principal_components(
             matrix,
             names,
@@ -356,18 +354,13 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         tests=tests,
         dependencies=deps.relations,
         removal=removal if options.wants("removal") else None,
-        ridge=ridge if wants("ridge") else None,
-        components=components if wants("components") else None,
+        ridge=ridge if wants_ridge else None,
+        components=components if wants_components else None,
         comparison=comparison,
         repair=summary.repair,
         warnings=tuple(dict.fromkeys(notes)),
         cautions=CAUTIONS,
     )
-
-
-def _none(section: str) -> bool:
-    """No section wanted (the remedies that need a response, for estimates)."""
-    return False
 
 
 def _conditioning(
