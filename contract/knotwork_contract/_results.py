@@ -866,7 +866,7 @@ class Assessment(_Result, frozen=True):
     """
 
     input_kind: str = ""
-    n: float | None = math.nan
+    n: float | None = None
     p: int = 0
     response: str | None = None
     intercept: bool = True
