@@ -108,12 +108,22 @@ def test_from_fitted_keeps_only_the_regression_coefficients() -> None:
     fake = SimpleNamespace(
         cov_params=lambda: cov,
         params=pd.Series(np.zeros(4), index=names),
-        model=SimpleNamespace(exog_names=["const", "a", "b"]),
+        model=SimpleNamespace(exog_names=names, exog=np.zeros((50, 3))),
         nobs=50,
     )
     est = from_fitted(fake)
     assert list(est.names) == ["const", "a", "b"]
     assert est.covariance.shape == (3, 3)
+    # The same with arrays: no names on the covariance, the coefficients named by the model.
+    unnamed = SimpleNamespace(
+        cov_params=lambda: cov.to_numpy(),
+        params=np.zeros(4),
+        model=SimpleNamespace(exog_names=["const", "a", "b"], exog=np.zeros((50, 3))),
+        nobs=50,
+    )
+    est = from_fitted(unnamed)
+    assert list(est.names) == ["const", "a", "b"]
+    assert np.array_equal(est.covariance, np.diag([4.0, 1.0, 2.0]))  # copied entries
     # A mixed model's fixed effects (fe_params) are kept, its variance parameters left out.
     mixed = SimpleNamespace(
         cov_params=lambda: cov.rename(index={"alpha": "Group Var"}, columns={"alpha": "Group Var"}),
@@ -122,6 +132,32 @@ def test_from_fitted_keeps_only_the_regression_coefficients() -> None:
         nobs=50.0,
     )
     assert list(from_fitted(mixed).names) == ["const", "a", "b"]
+
+
+def test_from_fitted_leaves_out_a_negative_binomial_alpha() -> None:
+    # Source: statsmodels' NegativeBinomial (its alpha comes last, named in exog_names too);
+    # the first 4 x 4 block of cov_params() are the regression coefficients.
+    data = sm.datasets.randhie.load_pandas().data.iloc[:2000]
+    fit = smf.negativebinomial("mdvis ~ lncoins + idp + lpi", data=data).fit(disp=0)
+    est = from_fitted(fit)
+    assert list(est.names) == ["Intercept", "lncoins", "idp", "lpi"]
+    assert est.intercept == "Intercept"
+    assert np.array_equal(est.covariance, fit.cov_params().to_numpy()[:4, :4])  # copied
+
+
+def test_from_fitted_keeps_a_mixed_model_fixed_effects() -> None:
+    # Source: statsmodels' MixedLM on generated data (twenty groups with a random intercept);
+    # its cov_params() adds the group variance after the fixed effects.
+    rng = np.random.default_rng(7)
+    frame = pd.DataFrame({"group": rng.integers(0, 20, 300), "x1": rng.normal(size=300)})
+    frame["x2"] = frame["x1"] + 0.5 * rng.normal(size=300)
+    frame["y"] = frame["x1"] + frame["x2"] + rng.normal(size=20)[frame["group"]]
+    frame["y"] += rng.normal(size=300)
+    fit = smf.mixedlm("y ~ x1 + x2", frame, groups=frame["group"]).fit()
+    assert list(fit.cov_params().index) == ["Intercept", "x1", "x2", "Group Var"]
+    est = from_fitted(fit)
+    assert list(est.names) == ["Intercept", "x1", "x2"] and est.intercept == "Intercept"
+    assert np.array_equal(est.covariance, fit.cov_params().to_numpy()[:3, :3])  # copied
 
 
 def test_from_fitted_refuses_what_is_not_a_fit() -> None:

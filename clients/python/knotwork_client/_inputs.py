@@ -246,9 +246,9 @@ def from_fitted(
     Reads ``results.cov_params()`` (whatever covariance the model was fitted with: model-based,
     robust, clustered), the coefficient names (the covariance's index, ``params.index`` or
     ``model.exog_names``) and ``results.nobs``. Only the regression coefficients are kept: a
-    mixed model's variance parameters (``fe_params`` gives the fixed effects) and extra
-    parameters such as a negative binomial's ``alpha`` are left out. statsmodels is never
-    imported here.
+    mixed model's fixed effects (``fe_params``), or else the first as many parameters as the
+    design (``model.exog``) has columns, so that variance parameters and extra parameters
+    such as a negative binomial's ``alpha`` are left out. statsmodels is never imported here.
 
     Parameters
     ----------
@@ -287,17 +287,23 @@ def from_fitted(
             "cannot read the coefficients' names and square covariance from the results",
             [("", "no coefficient names or covariance")],
         )
+    if index is None and matrix.shape[0] > len(names):
+        # Unnamed extra parameters come after the coefficients.
+        matrix = matrix[: len(names), : len(names)]
+    # The regression coefficients: a mixed model's fixed effects (fe_params), else the first
+    # as many parameters as the design has columns (statsmodels puts extra parameters, such as
+    # a negative binomial's alpha or a mixed model's variances, after them).
     fixed = getattr(getattr(results, "fe_params", None), "index", None)
-    keep = [str(n) for n in fixed] if fixed is not None else None
-    if keep is None and exog_names is not None:
-        keep = [str(n) for n in exog_names]
-    if keep is not None and keep != names:
-        if index is None and len(keep) <= len(names):
-            names = names[: len(keep)]  # statsmodels puts extra parameters after the others
-        if set(keep) <= set(names):
-            where = [names.index(n) for n in keep]
-            matrix = matrix[np.ix_(where, where)]
-            names = keep
+    columns = getattr(getattr(model, "exog", None), "shape", None)
+    keep = None
+    if fixed is not None:
+        keep = [str(n) for n in fixed]
+    elif columns is not None and len(columns) == 2 and int(columns[1]) < len(names):
+        keep = names[: int(columns[1])]
+    if keep is not None and keep != names and set(keep) <= set(names):
+        where = [names.index(n) for n in keep]
+        matrix = matrix[np.ix_(where, where)]
+        names = keep
     if matrix.shape != (len(names), len(names)):
         raise DataError(
             f"the covariance is {matrix.shape[0]} x {matrix.shape[1]} for {len(names)} names",
