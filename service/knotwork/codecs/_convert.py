@@ -10,6 +10,7 @@ from knotwork.core import (
     Summary,
     assess,
     from_correlation,
+    from_estimates,
     from_moments,
     from_table,
     merge_moments,
@@ -18,7 +19,7 @@ from knotwork.core import (
 from knotwork_contract import Assessment, AssessOptions, Problem
 
 from ._errors import UnusableInput
-from ._prepared import CorrelationData, MomentsData, Prepared, TableData
+from ._prepared import CorrelationData, EstimatesData, Prepared, TableData
 
 __all__ = ["core_options", "run", "summarize"]
 
@@ -63,7 +64,15 @@ def summarize(prepared: Prepared) -> Summary:
             terms=data.terms,
             repair=repair,
         )
-    assert isinstance(data, MomentsData)
+    if isinstance(data, EstimatesData):
+        return from_estimates(
+            data.names,
+            data.covariance,
+            data.intercept,
+            terms=data.terms,
+            n=data.n,
+            repair=repair,
+        )
     if data.parts is not None:
         return merge_moments(
             data.parts, data.names, response=data.response, terms=data.terms, repair=repair

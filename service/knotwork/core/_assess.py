@@ -35,7 +35,7 @@ from ._remedies import compare_remedies
 from ._removal import removal_sequence
 from ._ridge import ridge_analysis
 from ._significance import collinearity_tests
-from ._summary import Summary
+from ._summary import INTERCEPT_NAME, Summary
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
@@ -146,7 +146,17 @@ def check_options(options: Options, summary: Summary) -> None:
             problems.append(
                 Problem("/components/limit", "a condition-index limit must be a number >= 1")
             )
-    if not options.intercept and not summary.has_moments:
+    estimates = summary.implied_design
+    if estimates is not None:
+        if not options.intercept and estimates[1][0] == INTERCEPT_NAME:
+            problems.append(
+                Problem(
+                    "/intercept",
+                    "the fitted model has an intercept (input.intercept names it), so its "
+                    "estimates give centred diagnostics; leave intercept at true",
+                )
+            )
+    elif not options.intercept and not summary.has_moments:
         problems.append(
             Problem(
                 "/intercept",
@@ -193,7 +203,13 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
     p = summary.p
     names = summary.names
     notes: list[Notice] = list(summary.notes)
-    if options.intercept:
+    # Estimates imply their design's correlation, centred or not as the fitted model was.
+    estimates = summary.implied_design is not None
+    intercept = options.intercept
+    if estimates:
+        assert summary.implied_design is not None
+        intercept = summary.implied_design[1][0] == INTERCEPT_NAME
+    if options.intercept or estimates:
         matrix = summary.R
         r_xy = summary.r_xy
     else:
@@ -259,7 +275,16 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
 
     checkpoint()
     tests = None
-    if options.wants("tests"):
+    no_n = math.isnan(summary.n)
+    if options.wants("tests") and no_n:
+        notes.append(
+            notice(
+                "skipped_without_n",
+                "the tests were skipped: they need the number of observations; send n with "
+                "the estimates",
+            )
+        )
+    elif options.wants("tests"):
         tests = collinearity_tests(
             matrix,
             summary.n,
@@ -279,7 +304,21 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
 
     checkpoint()
     removal = ridge = components = comparison = None
-    wants_comparison = options.wants("comparison")
+    # Ridge, components and the comparison need the response's correlations (or rows).
+    remedies = not estimates
+    wants_ridge = remedies and options.wants("ridge")
+    wants_components = remedies and options.wants("components")
+    wants_comparison = remedies and options.wants("comparison")
+    if estimates:
+        skipped = [s for s in ("ridge", "components", "comparison") if options.wants(s)]
+        if skipped:
+            notes.append(
+                notice(
+                    "skipped_without_response",
+                    f"{', '.join(skipped)} skipped: they need a response or rows, and the "
+                    "estimates of a fitted model carry neither; send rows or moments for them",
+                )
+            )
     if options.wants("removal") or wants_comparison:
         removal = removal_sequence(
             matrix,
@@ -304,7 +343,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         means=summary.predictor_means if centred else None,
         response_mean=summary.response_mean if centred else None,
     )
-    if options.wants("ridge") or wants_comparison:
+    if wants_ridge or wants_comparison:
         ridge = ridge_analysis(
             matrix,
             names,
@@ -314,7 +353,7 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
             spectrum=spectrum,
         )
     checkpoint()
-    if options.wants("components") or wants_comparison:
+    if wants_components or wants_comparison:
         components = principal_components(
             matrix,
             names,
@@ -339,10 +378,10 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         )
     return Assessment(
         input_kind=summary.input_kind,
-        n=float(summary.n),
+        n=None if no_n else float(summary.n),
         p=p,
         response=summary.response,
-        intercept=options.intercept,
+        intercept=intercept,
         threshold=float(options.threshold),
         variables=variables,
         terms=terms,
@@ -350,8 +389,8 @@ def assess(summary: Summary, options: Options | None = None) -> Assessment:
         tests=tests,
         dependencies=deps.relations,
         removal=removal if options.wants("removal") else None,
-        ridge=ridge if options.wants("ridge") else None,
-        components=components if options.wants("components") else None,
+        ridge=ridge if wants_ridge else None,
+        components=components if wants_components else None,
         comparison=comparison,
         repair=summary.repair,
         warnings=tuple(dict.fromkeys(notes)),
@@ -367,7 +406,16 @@ def _conditioning(
     notes: list[Notice],
 ) -> Conditioning:
     cross = summary.design_crossproducts(options.intercept)
-    if cross is not None:
+    if summary.implied_design is not None:
+        g, cnames = summary.implied_design
+        result = condition_diagnostics(
+            g,
+            cnames,
+            "estimates",
+            index_threshold=options.index_threshold,
+            proportion_threshold=options.proportion_threshold,
+        )
+    elif cross is not None:
         g, cnames = cross
         basis = "scaled_with_intercept" if options.intercept else "scaled_uncentred"
         result = condition_diagnostics(

@@ -10,7 +10,7 @@ from knotwork.core._dependencies import NULL_RTOL, Spectrum
 from knotwork_contract import Conditioning, ProportionRow, Tangle
 
 #: The bases a cross-product matrix can be given in; ``Conditioning.basis`` echoes one of them.
-BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation")
+BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation", "estimates")
 
 #: The smallest share a high-index row lists (the full table has every share).
 ROW_FLOOR = 0.1
@@ -38,7 +38,9 @@ def condition_diagnostics(
         Symmetric positive semi-definite cross-product matrix with a positive diagonal, shape
         (m, m). For ``basis="scaled_with_intercept"`` it is :math:`[1, X]^\\top W [1, X]`,
         uncentred, with the constant column first; for ``"scaled_uncentred"`` it is
-        :math:`X^\\top W X`; for ``"correlation"`` it is the correlation matrix itself.
+        :math:`X^\\top W X`; for ``"correlation"`` it is the correlation matrix itself; for
+        ``"estimates"`` it is the inverse of the correlation of a fitted model's estimates (the
+        cross-products the estimates imply, the constant first when the model has one).
     names
         Column names in matrix order (``"<constant>"`` first for the intercept basis).
     basis
