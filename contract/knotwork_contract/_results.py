@@ -197,7 +197,10 @@ class Conditioning(_Result, frozen=True):
         Which matrix was decomposed: ``"scaled_with_intercept"`` (the uncentred cross-products
         of the constant and the predictors, every column scaled to unit length),
         ``"scaled_uncentred"`` (the same without a constant column) or ``"correlation"`` (the
-        predictors centred and scaled: the correlation matrix).
+        predictors centred and scaled: the correlation matrix) or ``"estimates"`` (the
+        inverse of the estimates' covariance scaled to unit diagonal, the intercept first when
+        the model has one: for least squares the cross-products of the design with every column
+        scaled to unit length, as ``"scaled_with_intercept"``).
     names
         The columns the proportions refer to, in matrix order; ``"<constant>"`` comes first
         when the constant column is included.
@@ -901,15 +904,17 @@ class Assessment(_Result, frozen=True):
     Attributes
     ----------
     input_kind
-        ``"table"``, ``"correlation"`` or ``"moments"``.
+        ``"table"``, ``"correlation"``, ``"moments"`` or ``"estimates"``.
     n
-        Observations (or sum of weights) behind the summary.
+        Observations (or sum of weights) behind the summary; None for estimates sent without
+        n.
     p
         Number of predictors (intercept not counted; categorical variables expanded).
     response
         The response's name, if one was given.
     intercept
-        Whether the diagnostics assume a model with an intercept (centred) or not.
+        Whether the diagnostics assume a model with an intercept (centred) or not; for
+        estimates, whether the fitted model has one.
     threshold
         The VIF threshold the flags use (echoed).
     variables
@@ -951,7 +956,7 @@ class Assessment(_Result, frozen=True):
     """
 
     input_kind: str = ""
-    n: float = math.nan
+    n: float | None = None
     p: int = 0
     response: str | None = None
     intercept: bool = True

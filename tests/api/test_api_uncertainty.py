@@ -298,3 +298,28 @@ def test_the_rows_are_kept_for_the_bootstrap_only(uncertainty: Any, kept: bool) 
     # The same summary either way (the same kernel on the same columns).
     plain = summarize(prepared)
     assert summary.names == plain.names and np.array_equal(summary.correlation, plain.correlation)
+
+
+def test_estimates_get_normal_intervals_with_their_n_only(client) -> None:
+    import copy
+
+    from knotwork.api._examples import ESTIMATES_EXAMPLE
+
+    body = copy.deepcopy(ESTIMATES_EXAMPLE)
+    body["options"]["uncertainty"] = {"method": "normal"}
+    answer = post(client, body)
+    assert answer.status_code == 200, answer.text
+    doc = answer.json()
+    assert doc["uncertainty"]["n"] == 16 and doc["uncertainty"]["rank"] == 4
+    for v in doc["variables"]:
+        low, high = v["vif_interval"]
+        assert low <= v["vif"] <= high
+    body["options"]["uncertainty"] = {"method": "bootstrap"}
+    problem = assert_problem(
+        post(client, body), 422, "invalid-option", "/options/uncertainty/method"
+    )
+    assert "an estimates input has none" in problem["errors"][0]["reason"]
+    body["options"]["uncertainty"] = {"method": "normal"}
+    del body["input"]["n"]
+    problem = assert_problem(post(client, body), *CROSS, "/options/uncertainty")
+    assert "give the input's n" in problem["errors"][0]["reason"]

@@ -237,3 +237,58 @@ def test_an_infinite_value_in_a_later_block_is_named(monkeypatch, rng) -> None:
         from_table({f"c{j}": x[:, j] for j in range(3)})
     assert info.value.problems[0].pointer == "/columns/c2"
     assert "row 900 is infinite" in info.value.problems[0].reason
+
+
+def test_variables_alone_skip_the_spectrum_and_answer_the_same(longley: pd.DataFrame) -> None:
+    # A request for VIFs alone skips the eigen-decomposition when a bound proves the matrix
+    # regular; its VIFs come from the same inverse_spd call on the same matrix, so they are
+    # the very bits of the full assessment's (identical computation, no tolerance needed).
+    rows = from_frame(longley.drop(columns="TOTEMP"))
+    full = assess(rows)
+    alone = assess(rows, Options(sections=["variables"]))
+    assert [v.vif for v in alone.variables] == [v.vif for v in full.variables]
+    assert alone.dependencies == ()
+
+
+def test_clearly_regular_inverse_refuses_what_it_cannot_prove() -> None:
+    # Pure linear algebra, checked against numpy: lambda_min >= 1 / trace(M^-1).
+    from knotwork.core._dependencies import clearly_regular_inverse
+
+    regular = np.array([[1.0, 0.5], [0.5, 1.0]])
+    inverse = clearly_regular_inverse(regular)
+    assert inverse is not None
+    assert_allclose(inverse, np.linalg.inv(regular), rtol=1e-14)
+    eps = 1e-10  # correlation 1 - eps: VIF about 5e9, smallest eigenvalue 1e-10
+    near = np.array([[1.0, 1.0 - eps], [1.0 - eps, 1.0]])
+    assert clearly_regular_inverse(near) is None
+    singular = np.ones((2, 2))
+    assert clearly_regular_inverse(singular) is None
+
+
+def test_variables_alone_still_warn_of_near_singularity() -> None:
+    # The bound fails for a near-singular matrix, so the spectrum is computed and the warning
+    # is the same with or without the other sections.
+    eps = 1e-9  # smallest eigenvalue 1e-9: near-singular, above the exact-dependency cut
+    c = 0.0123456789  # a full-precision entry, so the matrix does not look rounded
+    r = np.array([[1.0, 1.0 - eps, 0.0], [1.0 - eps, 1.0, 0.0], [0.0, 0.0, 1.0]])
+    r[0, 2] = r[2, 0] = c
+    r[1, 2] = r[2, 1] = c
+    summary = from_correlation(["a", "b", "c"], r, 500)
+    codes = {w.code for w in assess(summary, Options(sections=["variables"])).warnings}
+    assert "near_singular" in codes
+    assert codes == {w.code for w in assess(summary).warnings} & codes
+
+
+def test_summary_depth_computes_what_the_summary_keeps(longley: pd.DataFrame) -> None:
+    # Options(detail="summary") skips the p x p tables instead of building and dropping them;
+    # every value a summary keeps comes from the same computation, so the encoded answers are
+    # the same bytes (identical code path for the kept values, no tolerance needed).
+    import msgspec
+
+    from knotwork.core import summary_detail
+
+    rows = from_frame(longley, response="TOTEMP")
+    dropped = summary_detail(assess(rows))
+    skipped = summary_detail(assess(rows, Options(detail="summary")))
+    assert msgspec.json.encode(skipped) == msgspec.json.encode(dropped)
+    assert skipped.removal is not None and skipped.removal.alternative is None

@@ -28,7 +28,7 @@ from ._exceptions import (
     ServiceError,
     TransportError,
 )
-from ._inputs import Correlation, Moments
+from ._inputs import Correlation, Estimates, Moments, estimates, from_fitted
 from ._results import (
     Assessment,
     Component,
@@ -64,6 +64,7 @@ __all__ = [
     "Correlation",
     "DataError",
     "Dependency",
+    "Estimates",
     "FarrarGlauber",
     "FieldError",
     "InputRejectedError",
@@ -91,6 +92,8 @@ __all__ = [
     "UncertaintyOptions",
     "Variable",
     "__version__",
+    "estimates",
+    "from_fitted",
     "merge_summaries",
     "summarize",
     "summarize_dask",

@@ -302,8 +302,10 @@ class Client(_BaseClient):
         ----------
         data
             Rows (a DataFrame, an Arrow table, a named numpy array, a mapping of columns, a
-            path to a CSV, Parquet or Arrow file) or a summary (:class:`Summary`,
-            :class:`Correlation`, :class:`Moments`). Large tables go as Arrow IPC.
+            path to a CSV, Parquet or Arrow file), a summary (:class:`Summary`,
+            :class:`Correlation`, :class:`Moments`), a fitted model's :class:`Estimates`, or
+            a fitted statsmodels results object (read by :func:`from_fitted`). Large tables go
+            as Arrow IPC.
         **options
             For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``.
             Service options: ``threshold``, ``protect``, ``intercept``, ``missing``,

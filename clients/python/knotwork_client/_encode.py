@@ -15,7 +15,7 @@ import numpy as np
 from knotwork_contract import AssessOptions, check_options, options_query
 
 from ._exceptions import DataError
-from ._inputs import Correlation, Moments
+from ._inputs import Correlation, Estimates, Moments, from_fitted, is_fitted
 from ._summary import Summary
 from ._tables import Block, iter_blocks
 
@@ -221,10 +221,17 @@ def _has_pyarrow() -> bool:
 
 
 def _summary_like(data: Any) -> dict[str, Any] | None:
-    if isinstance(data, (Summary, Correlation, Moments)):
+    if isinstance(data, (Summary, Correlation, Moments, Estimates)):
         return data.to_input()
-    if isinstance(data, Mapping) and data.get("kind") in ("table", "correlation", "moments"):
+    if isinstance(data, Mapping) and data.get("kind") in (
+        "table",
+        "correlation",
+        "moments",
+        "estimates",
+    ):
         return dict(data)
+    if is_fitted(data):
+        return from_fitted(data).to_input()
     return None
 
 

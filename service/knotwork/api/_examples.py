@@ -3,7 +3,9 @@
 The scenario is our own and the numbers are generated (numpy, seed 20240611): sixteen orchard
 plots, where soil moisture follows rainfall and irrigation closely, so the moisture reading is
 nearly redundant given the other two. The correlation and moments examples summarize the same
-plots (correlations rounded to 3 decimals, moments to 3).
+plots (correlations rounded to 3 decimals, moments to 3). The estimates example is the
+covariance of the least-squares estimates of yield on rainfall, irrigation, soil moisture and
+sun hours with an intercept, fitted to the same plots (6 significant digits).
 """
 
 from __future__ import annotations
@@ -12,6 +14,7 @@ from typing import Any
 
 __all__ = [
     "CORRELATION_EXAMPLE",
+    "ESTIMATES_EXAMPLE",
     "MOMENTS_EXAMPLE",
     "PARTS_EXAMPLE",
     "TABLE_COLUMNS",
@@ -100,4 +103,21 @@ PARTS_EXAMPLE: dict[str, Any] = {
             },
         ],
     },
+}
+
+ESTIMATES_EXAMPLE: dict[str, Any] = {
+    "input": {
+        "kind": "estimates",
+        "names": ["intercept", "rainfall_mm", "irrigation_l", "soil_moisture", "sun_hours"],
+        "covariance": [
+            [58.8832, 0.288202, -0.105321, -1.29108, -4.33379],
+            [0.288202, 0.0208158, 0.017884, -0.0587374, -0.0406705],
+            [-0.105321, 0.017884, 0.0250758, -0.0559937, -0.0161592],
+            [-1.29108, -0.0587374, -0.0559937, 0.184987, 0.130208],
+            [-4.33379, -0.0406705, -0.0161592, 0.130208, 0.457397],
+        ],
+        "intercept": "intercept",
+        "n": 16,
+    },
+    "options": {"threshold": 5},
 }

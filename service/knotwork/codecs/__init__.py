@@ -15,7 +15,15 @@ from ._errors import (
     UnusableInput,
 )
 from ._json import decode_assess, decode_batch
-from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
+from ._prepared import (
+    CorrelationData,
+    EstimatesData,
+    Limits,
+    MomentsData,
+    Origin,
+    Prepared,
+    TableData,
+)
 from ._query import options_from_query
 
 __all__ = [
@@ -24,6 +32,7 @@ __all__ = [
     "PARQUET",
     "CodecError",
     "CorrelationData",
+    "EstimatesData",
     "InvalidRequest",
     "Limits",
     "MalformedBody",

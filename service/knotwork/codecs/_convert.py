@@ -12,6 +12,7 @@ from knotwork.core import (
     assess,
     design_from_table,
     from_correlation,
+    from_estimates,
     from_moments,
     from_table,
     merge_moments,
@@ -20,7 +21,7 @@ from knotwork.core import (
 from knotwork_contract import Assessment, AssessOptions, Problem
 
 from ._errors import UnusableInput
-from ._prepared import CorrelationData, MomentsData, Prepared, TableData
+from ._prepared import CorrelationData, EstimatesData, Prepared, TableData
 
 __all__ = ["core_options", "run", "summarize", "summarize_with_rows"]
 
@@ -34,6 +35,7 @@ def core_options(options: AssessOptions) -> Options:
         intercept=options.intercept,
         sections=tuple(options.sections) if options.sections is not None else None,
         ridge_grid=tuple(ridge.grid) if ridge is not None and ridge.grid is not None else None,
+        detail=options.detail,
     )
     components = options.components
     if components is not None:
@@ -91,7 +93,15 @@ def summarize(prepared: Prepared) -> Summary:
             terms=data.terms,
             repair=repair,
         )
-    assert isinstance(data, MomentsData)
+    if isinstance(data, EstimatesData):
+        return from_estimates(
+            data.names,
+            data.covariance,
+            data.intercept,
+            terms=data.terms,
+            n=data.n,
+            repair=repair,
+        )
     if data.parts is not None:
         return merge_moments(
             data.parts, data.names, response=data.response, terms=data.terms, repair=repair

@@ -16,6 +16,7 @@ from msgspec import Meta, Raw, Struct
 from knotwork_contract import (
     AssessRequest,
     CorrelationInput,
+    EstimatesInput,
     MomentsInput,
     Name,
     Problem,
@@ -25,7 +26,15 @@ from knotwork_contract import (
 )
 
 from ._errors import InvalidRequest, MalformedBody, TooLarge
-from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
+from ._prepared import (
+    CorrelationData,
+    EstimatesData,
+    Limits,
+    MomentsData,
+    Origin,
+    Prepared,
+    TableData,
+)
 
 __all__ = ["decode_assess", "decode_batch"]
 
@@ -145,11 +154,13 @@ def decode_assess(body: Buffer, limits: Limits, *, base: str = "") -> Prepared:
     request: AssessRequest = _parse(_REQUEST, body, base)
     inp = request.input
     at = base + "/input"
-    data: TableData | CorrelationData | MomentsData
+    data: TableData | CorrelationData | MomentsData | EstimatesData
     if isinstance(inp, TableInput):
         data = _table(inp, limits, at)
     elif isinstance(inp, CorrelationInput):
         data = _correlation(inp, limits, at)
+    elif isinstance(inp, EstimatesInput):
+        data = _estimates(inp, limits, at)
     else:
         data = _moments(inp, limits, at)
     return Prepared(data=data, options=request.options, origin=Origin(base=base))
@@ -277,4 +288,16 @@ def _moments(inp: MomentsInput, limits: Limits, at: str) -> MomentsData:
         covariance=inp.covariance,
         response=inp.response,
         terms=_terms(inp.terms, at),
+    )
+
+
+def _estimates(inp: EstimatesInput, limits: Limits, at: str) -> EstimatesData:
+    _too_many_columns(len(inp.names), limits, at + "/names")
+    _too_many_cells(_matrix_cells(inp.covariance), limits, at + "/covariance")
+    return EstimatesData(
+        names=inp.names,
+        covariance=inp.covariance,
+        intercept=inp.intercept,
+        terms=_terms(inp.terms, at),
+        n=inp.n,
     )

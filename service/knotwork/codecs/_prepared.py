@@ -14,7 +14,15 @@ import numpy as np
 from knotwork.settings import DEFAULT_MAX_BATCH_ITEMS, DEFAULT_MAX_CELLS, DEFAULT_MAX_COLUMNS
 from knotwork_contract import QUERY_PARAMETERS, AssessOptions, join
 
-__all__ = ["CorrelationData", "Limits", "MomentsData", "Origin", "Prepared", "TableData"]
+__all__ = [
+    "CorrelationData",
+    "EstimatesData",
+    "Limits",
+    "MomentsData",
+    "Origin",
+    "Prepared",
+    "TableData",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -58,6 +66,17 @@ class MomentsData:
     parts: list[tuple[float, list[float], list[list[float]]]] | None = None
     response: str | None = None
     terms: dict[str, list[str]] | None = None
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class EstimatesData:
+    """A fitted model's estimates: coefficient names, their covariance, the intercept's name."""
+
+    names: list[str]
+    covariance: list[list[float]]
+    intercept: str | None
+    terms: dict[str, list[str]] | None = None
+    n: float | None = None
 
 
 # The query parameter that carries each option or column name, for requests whose options are
@@ -108,13 +127,15 @@ class Origin:
 class Prepared:
     """A decoded request: the data, the options and where they came from."""
 
-    data: TableData | CorrelationData | MomentsData
+    data: TableData | CorrelationData | MomentsData | EstimatesData
     options: AssessOptions
     origin: Origin = Origin()
 
     @property
     def kind(self) -> str:
-        """``table``, ``correlation`` or ``moments``."""
+        """``table``, ``correlation``, ``moments`` or ``estimates``."""
         if isinstance(self.data, TableData):
             return "table"
+        if isinstance(self.data, EstimatesData):
+            return "estimates"
         return "correlation" if isinstance(self.data, CorrelationData) else "moments"

@@ -1,10 +1,10 @@
 """The numerical core of knotwork: pure numpy/scipy, no web imports.
 
 Build a :class:`Summary` with :func:`from_table`, :func:`from_frame`, :func:`from_correlation`,
-:func:`from_moments` or :func:`merge_moments`, then call :func:`assess`
-(:func:`design_from_table` also keeps the design's rows, for the bootstrap). The result records
-(:class:`~knotwork_contract.Assessment` and its parts) are the shared contract's: import them
-from :mod:`knotwork_contract`.
+:func:`from_moments`, :func:`merge_moments` or :func:`from_estimates` (a fitted model's
+estimates), then call :func:`assess` (:func:`design_from_table` also keeps the design's rows,
+for the bootstrap). The result records (:class:`~knotwork_contract.Assessment` and its parts)
+are the shared contract's: import them from :mod:`knotwork_contract`.
 """
 
 from knotwork_contract import SECTIONS
@@ -23,6 +23,7 @@ from ._errors import (
     Problem,
     TooFewDataError,
 )
+from ._estimates import from_estimates
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
 from ._matrices import from_correlation, from_moments, merge_moments
@@ -72,6 +73,7 @@ __all__ = [
     "design_from_table",
     "find_dependencies",
     "from_correlation",
+    "from_estimates",
     "from_frame",
     "from_moments",
     "from_table",

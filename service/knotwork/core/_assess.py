@@ -23,7 +23,13 @@ from knotwork_contract import check_options as contract_check_options
 
 from ._components import LIMIT_WITH_VIF_THRESHOLD, VIF_THRESHOLD, principal_components
 from ._conditioning import condition_diagnostics
-from ._dependencies import DependencyReport, Spectrum, find_dependencies
+from ._dependencies import (
+    NEAR_SINGULAR_RTOL,
+    DependencyReport,
+    Spectrum,
+    clearly_regular_inverse,
+    find_dependencies,
+)
 from ._errors import OptionError, Problem
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
@@ -34,12 +40,15 @@ from ._removal import removal_sequence
 from ._ridge import ridge_analysis
 from ._rows import DesignRows
 from ._significance import collinearity_tests
-from ._summary import Summary
+from ._summary import INTERCEPT_NAME, Summary
 from ._uncertainty import bootstrap_intervals, normal_intervals
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
 #: figure is a round number for the warning, not a published cut-off.
 _LARGE_N = 10_000
+#: Sections that read the eigen-decomposition of the predictors' matrix; without them a matrix
+#: that is provably far from singular needs none (see ``clearly_regular_inverse``).
+_SPECTRAL = ("conditioning", "tests", "removal", "ridge", "components", "comparison")
 
 
 @dataclass(frozen=True, slots=True)
@@ -71,6 +80,11 @@ class Options:
         A tangle is a component with condition index above ``index_threshold`` and two or more
         variance-decomposition proportions above ``proportion_threshold`` (common practice
         after Belsley, Kuh & Welsch: 30 and 0.5).
+    detail
+        ``"full"`` (default) builds every table; ``"summary"`` leaves out the p x p tables
+        that :func:`summary_detail` drops (proportions, partial-correlation tables, component
+        loadings, per-step VIF vectors and the second removal ordering), so they are not
+        computed only to be thrown away. Everything a summary keeps is computed the same way.
     uncertainty
         The contract's :class:`~knotwork_contract.UncertaintyOptions` (method ``normal`` or
         ``bootstrap``, level, replicates, seed), or None for no intervals. The bootstrap needs
@@ -86,10 +100,16 @@ class Options:
     components_limit: float | None = None
     index_threshold: float = 30.0
     proportion_threshold: float = 0.5
+    detail: str = "full"
     uncertainty: UncertaintyOptions | None = None
 
     def wants(self, section: str) -> bool:
         return self.sections is None or section in self.sections
+
+    @property
+    def tables(self) -> bool:
+        """Whether the p x p tables are wanted (the full detail)."""
+        return self.detail == "full"
 
 
 def _wire_document(options: Options) -> dict[str, object]:
@@ -139,7 +159,17 @@ def check_options(options: Options, summary: Summary, rows: DesignRows | None = 
             problems.append(
                 Problem("/components/limit", "a condition-index limit must be a number >= 1")
             )
-    if not options.intercept and not summary.has_moments:
+    estimates = summary.implied_design
+    if estimates is not None:
+        if not options.intercept and estimates[1][0] == INTERCEPT_NAME:
+            problems.append(
+                Problem(
+                    "/intercept",
+                    "the fitted model has an intercept (input.intercept names it), so its "
+                    "estimates give centred diagnostics; leave intercept at true",
+                )
+            )
+    elif not options.intercept and not summary.has_moments:
         problems.append(
             Problem(
                 "/intercept",
@@ -167,14 +197,23 @@ def _uncertainty_problems(
                 "intercept=false leave uncertainty out",
             )
         ]
+    if math.isnan(summary.n):
+        return [
+            Problem(
+                "/uncertainty",
+                "the intervals need the number of observations behind the estimates; give "
+                "the input's n",
+            )
+        ]
     if unc.method != "bootstrap":
         return []
     if summary.input_kind != "table":
+        article = "an" if summary.input_kind[:1] in "aeiou" else "a"
         return [
             Problem(
                 "/uncertainty/method",
-                f"the bootstrap resamples rows, and a {summary.input_kind} input has none; send "
-                "the rows, or use method 'normal'",
+                f"the bootstrap resamples rows, and {article} {summary.input_kind} input has "
+                "none; send the rows, or use method 'normal'",
             )
         ]
     if rows is None:
@@ -230,7 +269,13 @@ def assess(
     p = summary.p
     names = summary.names
     notes: list[Notice] = list(summary.notes)
-    if options.intercept:
+    # Estimates imply their design's correlation, centred or not as the fitted model was.
+    estimates = summary.implied_design is not None
+    intercept = options.intercept
+    if estimates:
+        assert summary.implied_design is not None
+        intercept = summary.implied_design[1][0] == INTERCEPT_NAME
+    if options.intercept or estimates:
         matrix = summary.R
         r_xy = summary.r_xy
     else:
@@ -238,13 +283,18 @@ def assess(
         assert cos is not None
         matrix = cos[:p, :p]
         r_xy = cos[:p, p] if summary.response is not None else None
-    spectrum = Spectrum.of(matrix)
-    deps: DependencyReport = find_dependencies(
-        spectrum,
-        names,
-        sds=summary.sds if options.intercept else None,
-        means=summary.predictor_means if options.intercept else None,
-    )
+    inverse = None if any(map(options.wants, _SPECTRAL)) else clearly_regular_inverse(matrix)
+    spectrum: Spectrum | None = None
+    if inverse is None:
+        spectrum = Spectrum.of(matrix)
+        deps: DependencyReport = find_dependencies(
+            spectrum,
+            names,
+            sds=summary.sds if options.intercept else None,
+            means=summary.predictor_means if options.intercept else None,
+        )
+    else:
+        deps = DependencyReport.none(p)
     if deps.relations:
         aliased = [names[j] for j in np.flatnonzero(deps.involved)]
         notes.append(
@@ -254,7 +304,7 @@ def assess(
                 f"{', '.join(aliased)}: their VIFs are infinite (reported as null, aliased)",
             )
         )
-    elif spectrum.values[-1] < 1e-8 * spectrum.values[0]:
+    elif spectrum is not None and spectrum.values[-1] < NEAR_SINGULAR_RTOL * spectrum.values[0]:
         notes.append(
             notice(
                 "near_singular",
@@ -262,7 +312,9 @@ def assess(
                 "near-singular, results are sensitive to small changes in the data",
             )
         )
-    variables = variance_inflation(matrix, names, threshold=options.threshold, dependencies=deps)
+    variables = variance_inflation(
+        matrix, names, threshold=options.threshold, dependencies=deps, inverse=inverse
+    )
     terms: tuple[TermInflation, ...] = ()
     if options.wants("terms") and summary.terms:
         terms = generalized_inflation(
@@ -289,9 +341,23 @@ def assess(
 
     checkpoint()
     tests = None
-    if options.wants("tests"):
+    no_n = math.isnan(summary.n)
+    if options.wants("tests") and no_n:
+        notes.append(
+            notice(
+                "skipped_without_n",
+                "the tests were skipped: they need the number of observations; send n with "
+                "the estimates",
+            )
+        )
+    elif options.wants("tests"):
         tests = collinearity_tests(
-            matrix, summary.n, names, [v.vif for v in variables], spectrum=spectrum
+            matrix,
+            summary.n,
+            names,
+            [v.vif for v in variables],
+            spectrum=spectrum,
+            tables=options.tables,
         )
         if summary.n > _LARGE_N:
             notes.append(
@@ -304,7 +370,21 @@ def assess(
 
     checkpoint()
     removal = ridge = components = comparison = None
-    wants_comparison = options.wants("comparison")
+    # Ridge, components and the comparison need the response's correlations (or rows).
+    remedies = not estimates
+    wants_ridge = remedies and options.wants("ridge")
+    wants_components = remedies and options.wants("components")
+    wants_comparison = remedies and options.wants("comparison")
+    if estimates:
+        skipped = [s for s in ("ridge", "components", "comparison") if options.wants(s)]
+        if skipped:
+            notes.append(
+                notice(
+                    "skipped_without_response",
+                    f"{', '.join(skipped)} skipped: they need a response or rows, and the "
+                    "estimates of a fitted model carry neither; send rows or moments for them",
+                )
+            )
     if options.wants("removal") or wants_comparison:
         removal = removal_sequence(
             matrix,
@@ -314,6 +394,8 @@ def assess(
             terms=summary.term_indices(),
             dependencies=deps,
             r_xy=r_xy,
+            tables=options.tables,
+            alternative=options.tables,
         )
     checkpoint()
     # The remedies' regression; coefficients in original units for centred models only.
@@ -327,7 +409,7 @@ def assess(
         means=summary.predictor_means if centred else None,
         response_mean=summary.response_mean if centred else None,
     )
-    if options.wants("ridge") or wants_comparison:
+    if wants_ridge or wants_comparison:
         ridge = ridge_analysis(
             matrix,
             names,
@@ -337,7 +419,7 @@ def assess(
             spectrum=spectrum,
         )
     checkpoint()
-    if options.wants("components") or wants_comparison:
+    if wants_components or wants_comparison:
         components = principal_components(
             matrix,
             names,
@@ -346,6 +428,7 @@ def assess(
             limit=options.components_limit,
             threshold=options.threshold,
             spectrum=spectrum,
+            tables=options.tables,
         )
     checkpoint()
     if wants_comparison:
@@ -367,10 +450,10 @@ def assess(
         )
     return Assessment(
         input_kind=summary.input_kind,
-        n=float(summary.n),
+        n=None if no_n else float(summary.n),
         p=p,
         response=summary.response,
-        intercept=options.intercept,
+        intercept=intercept,
         threshold=float(options.threshold),
         variables=variables,
         terms=terms,
@@ -378,8 +461,8 @@ def assess(
         tests=tests,
         dependencies=deps.relations,
         removal=removal if options.wants("removal") else None,
-        ridge=ridge if options.wants("ridge") else None,
-        components=components if options.wants("components") else None,
+        ridge=ridge if wants_ridge else None,
+        components=components if wants_components else None,
         comparison=comparison,
         repair=summary.repair,
         warnings=tuple(dict.fromkeys(notes)),
@@ -480,11 +563,20 @@ def _conditioning(
     summary: Summary,
     options: Options,
     matrix: np.ndarray,
-    spectrum: Spectrum,
+    spectrum: Spectrum | None,
     notes: list[Notice],
 ) -> Conditioning:
     cross = summary.design_crossproducts(options.intercept)
-    if cross is not None:
+    if summary.implied_design is not None:
+        g, cnames = summary.implied_design
+        result = condition_diagnostics(
+            g,
+            cnames,
+            "estimates",
+            index_threshold=options.index_threshold,
+            proportion_threshold=options.proportion_threshold,
+        )
+    elif cross is not None:
         g, cnames = cross
         basis = "scaled_with_intercept" if options.intercept else "scaled_uncentred"
         result = condition_diagnostics(
@@ -493,6 +585,7 @@ def _conditioning(
             basis,
             index_threshold=options.index_threshold,
             proportion_threshold=options.proportion_threshold,
+            tables=options.tables,
         )
     else:
         result = condition_diagnostics(
@@ -502,6 +595,7 @@ def _conditioning(
             index_threshold=options.index_threshold,
             proportion_threshold=options.proportion_threshold,
             spectrum=spectrum,
+            tables=options.tables,
         )
         notes.append(
             notice(

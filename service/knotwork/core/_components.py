@@ -91,8 +91,11 @@ def principal_components(
     limit: float | None = None,
     threshold: float = DEFAULT_THRESHOLD,
     spectrum: Spectrum | None = None,
+    tables: bool = True,
 ) -> Components:
     """Principal components, a rule for which to keep, and the regression on the kept ones.
+
+    ``tables=False`` leaves the p x p loadings and variable correlations out (empty).
 
     Parameters
     ----------
@@ -275,10 +278,12 @@ def principal_components(
         explained=tuple(explained.tolist()),
         cumulative=tuple(cumulative.tolist()),
         condition_indices=tuple(indices),
-        loadings=tuple(tuple(vecs[:, k].tolist()) for k in range(p)),
+        loadings=tuple(tuple(vecs[:, k].tolist()) for k in range(p)) if tables else (),
         variable_correlations=tuple(
             tuple((vecs[:, k] * math.sqrt(lam[k])).tolist()) for k in range(p)
-        ),
+        )
+        if tables
+        else (),
         kept=tuple(kept),
         rule=rule,
         limit=value,

@@ -10,7 +10,7 @@ from knotwork.core._dependencies import NULL_RTOL, Spectrum
 from knotwork_contract import Conditioning, ProportionRow, Tangle
 
 #: The bases a cross-product matrix can be given in; ``Conditioning.basis`` echoes one of them.
-BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation")
+BASES = ("scaled_with_intercept", "scaled_uncentred", "correlation", "estimates")
 
 #: The smallest share a high-index row lists (the full table has every share).
 ROW_FLOOR = 0.1
@@ -25,8 +25,12 @@ def condition_diagnostics(
     proportion_threshold: float = 0.5,
     null_rtol: float = NULL_RTOL,
     spectrum: Spectrum | None = None,
+    tables: bool = True,
 ) -> Conditioning:
     """Condition indices and variance-decomposition proportions from a cross-product matrix.
+
+    ``tables=False`` leaves the (m x m) proportions table out (empty); the high-index rows and
+    the tangles, built from the same shares, stay.
 
     Parameters
     ----------
@@ -34,7 +38,9 @@ def condition_diagnostics(
         Symmetric positive semi-definite cross-product matrix with a positive diagonal, shape
         (m, m). For ``basis="scaled_with_intercept"`` it is :math:`[1, X]^\\top W [1, X]`,
         uncentred, with the constant column first; for ``"scaled_uncentred"`` it is
-        :math:`X^\\top W X`; for ``"correlation"`` it is the correlation matrix itself.
+        :math:`X^\\top W X`; for ``"correlation"`` it is the correlation matrix itself; for
+        ``"estimates"`` it is the inverse of the correlation of a fitted model's estimates (the
+        cross-products the estimates imply, the constant first when the model has one).
     names
         Column names in matrix order (``"<constant>"`` first for the intercept basis).
     basis
@@ -141,8 +147,10 @@ def condition_diagnostics(
     phi[:, live] = vectors[:, live] ** 2 / values[live]
     shares = phi / phi.sum(axis=1, keepdims=True)
     # Rows follow the components; tolist() converts a whole row at C speed.
-    by_component = shares.T.tolist()
-    proportions = tuple(tuple(by_component[k]) if live[k] else (None,) * m for k in range(m))
+    proportions: tuple[tuple[float | None, ...], ...] = ()
+    if tables:
+        by_component = shares.T.tolist()
+        proportions = tuple(tuple(by_component[k]) if live[k] else (None,) * m for k in range(m))
 
     tangles = []
     for k in range(m):

@@ -19,6 +19,7 @@ def variance_inflation(
     *,
     threshold: float,
     dependencies: DependencyReport,
+    inverse: np.ndarray | None = None,
 ) -> tuple[VariableInflation, ...]:
     """VIF, tolerance, R_j^2 and standard-error inflation of every predictor.
 
@@ -33,6 +34,9 @@ def variance_inflation(
         VIF above which a predictor is flagged (a rule of thumb: 5 or 10 in common practice).
     dependencies
         Exact dependencies, from :func:`find_dependencies` on the same matrix.
+    inverse
+        The matrix's inverse when the caller has it already (a design with no dependency):
+        ``inverse_spd(matrix)``, the very computation made here otherwise.
 
     Returns
     -------
@@ -63,11 +67,14 @@ def variance_inflation(
     p = len(names)
     vif = np.full(p, np.nan)
     keep = dependencies.independent
-    sub = matrix[np.ix_(keep, keep)]
-    try:
-        inv = inverse_spd(sub)
-    except np.linalg.LinAlgError:
-        inv = np.linalg.pinv(sub, hermitian=True)
+    if inverse is not None and keep.shape[0] == p:
+        inv = inverse
+    else:
+        sub = matrix[np.ix_(keep, keep)]
+        try:
+            inv = inverse_spd(sub)
+        except np.linalg.LinAlgError:
+            inv = np.linalg.pinv(sub, hermitian=True)
     vif[keep] = np.diag(inv)
     vif[dependencies.involved] = np.nan
     out = []

@@ -576,6 +576,7 @@ def removal_sequence(
     r_xy: np.ndarray | None = None,
     tables: bool = True,
     growth_limit: float = GROWTH_LIMIT,
+    alternative: bool = True,
 ) -> Removal:
     """Greedy removal of the most inflated predictors or terms until all are under a threshold.
 
@@ -602,6 +603,8 @@ def removal_sequence(
     tables
         Whether each step carries the full inflation table (``steps[].vifs``); set False for
         very wide inputs to keep the result small.
+    alternative
+        Whether to add the second ordering when ``r_xy`` is given (False: only the first).
     growth_limit
         Accuracy test of the downdate (see ``GROWTH_LIMIT``); 1 or less re-inverts after every
         drop (the naive method).
@@ -728,10 +731,9 @@ def removal_sequence(
         return result
 
     plain = run(LARGEST_INFLATION)
-    if r is None:
+    if r is None or not alternative:
         return plain
-    alternative = run(LEAST_RESPONSE_CORRELATION)
-    return _with_alternative(plain, alternative)
+    return _with_alternative(plain, run(LEAST_RESPONSE_CORRELATION))
 
 
 def _with_notes(r: Removal, note: str) -> Removal:

@@ -51,6 +51,7 @@ def collinearity_tests(
     vif: Sequence[float | None],
     *,
     spectrum: Spectrum | None = None,
+    tables: bool = True,
 ) -> Tests:
     """Farrar-Glauber tests of collinearity and the partial correlations of the predictors.
 
@@ -67,6 +68,9 @@ def collinearity_tests(
     spectrum
         The eigen-decomposition of ``R``, if already computed; it decides whether R is
         singular (``null_dim > 0``). Computed here when not given.
+    tables
+        Whether to build the three p x p partial-correlation tables (False: empty; the
+        strongest pairs are kept either way).
 
     Returns
     -------
@@ -239,9 +243,10 @@ def collinearity_tests(
         # One vectorized call: the survival function, never 1 - cdf (scipy.stats.t.sf(|t|) is
         # this same stdtr(df, -|t|)).
         p_val[off] = 2.0 * scipy.special.stdtr(partial_df, -np.abs(t_stat[off]))
-    corr_rows = _rows_with_none(partial)
-    t_rows = _rows_with_none(t_stat)
-    p_rows = _rows_with_none(p_val)
+    empty: tuple[tuple[float | None, ...], ...] = ()
+    corr_rows = _rows_with_none(partial) if tables else empty
+    t_rows = _rows_with_none(t_stat) if tables else empty
+    p_rows = _rows_with_none(p_val) if tables else empty
     strongest = _strongest_pairs(partial, t_stat, p_val, names)
 
     return Tests(

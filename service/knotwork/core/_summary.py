@@ -8,6 +8,7 @@ code path and the answer for rows equals the answer for their summary.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -52,7 +53,7 @@ class Summary:
         Predictor names in design order (categorical variables expanded to indicator columns).
     n
         Number of observations, or the sum of the weights (frequency-weight convention); with
-        pairwise deletion, the smallest pairwise count.
+        pairwise deletion, the smallest pairwise count; NaN for estimates sent without n.
     correlation
         Correlation matrix over the predictors, then the response if there is one, (q, q).
     response
@@ -64,7 +65,7 @@ class Summary:
     terms
         Multi-column terms (categorical variables), each naming its columns.
     input_kind
-        ``"table"``, ``"correlation"`` or ``"moments"``.
+        ``"table"``, ``"correlation"``, ``"moments"`` or ``"estimates"``.
     notes
         Warnings gathered while summarizing (rows dropped, pairwise deletion, repair).
     rows
@@ -74,6 +75,11 @@ class Summary:
     sources
         For each of the q variables, the JSON pointer of the input field it came from (used to
         name the field in errors found after summarizing).
+    implied_design
+        For estimates only: the cross-product matrix the estimates' covariance implies (its
+        inverse, on the correlation scale) with its column names, the constant first and
+        named ``"<constant>"`` when the model has an intercept; the conditioning basis
+        ``"estimates"``. None for every other input.
     """
 
     names: tuple[str, ...]
@@ -88,6 +94,7 @@ class Summary:
     rows: int | None = None
     repair: RepairReport | None = None
     sources: tuple[str, ...] = ()
+    implied_design: tuple[np.ndarray, tuple[str, ...]] | None = None
 
     @property
     def p(self) -> int:
@@ -207,6 +214,8 @@ class Summary:
                     for j in np.flatnonzero(constant)
                 ]
                 raise InputError(problems[0].reason, problems)
+        if self.input_kind == "estimates" and math.isnan(self.n):
+            return self  # n is optional for estimates; the sections that need it are skipped
         count = self.rows if self.rows is not None else self.n
         if count <= p or self.n <= p:
             where = "/columns" if self.input_kind == "table" else "/n"

@@ -7,9 +7,10 @@ its JSON pointer, or returns the value in the form the summaries use.
 from __future__ import annotations
 
 import math
-from collections.abc import Collection, Mapping, Sequence
+from collections.abc import Callable, Collection, Mapping, Sequence
 
 import numpy as np
+import scipy.linalg
 
 from knotwork_contract import RepairReport
 from knotwork_contract import escape as esc
@@ -137,11 +138,12 @@ def n_value(n: object, p: int, pointer: str) -> float:
     return value
 
 
-def _looks_rounded(r: np.ndarray, lam_min: float) -> Notice | None:
+def _looks_rounded(r: np.ndarray, smallest: Callable[[], float]) -> Notice | None:
     """Warn when the entries carry few decimals and rounding could move the small eigenvalues.
 
     Rounding every off-diagonal entry by at most h moves each eigenvalue by at most
     ``(p - 1) h`` (Weyl's inequality with a Gershgorin bound on the perturbation).
+    ``smallest`` gives the smallest eigenvalue; it is called only for rounded-looking entries.
     """
     p = r.shape[0]
     off = r[~np.eye(p, dtype=bool)]
@@ -154,6 +156,7 @@ def _looks_rounded(r: np.ndarray, lam_min: float) -> Notice | None:
     # settles the usual case, a matrix of full-precision correlations.
     if not rounded_to(4):
         return None
+    lam_min = smallest()
     for decimals in range(1, 5):
         if rounded_to(decimals):
             bound = (p - 1) * 0.5 * 10.0**-decimals
@@ -171,11 +174,18 @@ def _looks_rounded(r: np.ndarray, lam_min: float) -> Notice | None:
 def validated_correlation(
     r: np.ndarray, pointer: str, repair: str
 ) -> tuple[np.ndarray, RepairReport | None, list[Notice]]:
-    """Check positive semi-definiteness; repair to the nearest correlation matrix on request."""
+    """Check positive semi-definiteness; repair to the nearest correlation matrix on request.
+
+    A matrix whose Cholesky factorization succeeds is positive definite and passes without its
+    eigenvalues, which are then computed only to judge rounded-looking entries.
+    """
     notes: list[Notice] = []
+    if r.shape[0] and scipy.linalg.lapack.dpotrf(r, lower=False)[1] == 0:
+        rounded = _looks_rounded(r, lambda: float(np.linalg.eigvalsh(r)[0]))
+        return r, None, [rounded] if rounded is not None else notes
     values = np.linalg.eigvalsh(r)
     lam_min, lam_max = float(values[0]), float(values[-1])
-    rounded = _looks_rounded(r, lam_min)
+    rounded = _looks_rounded(r, lambda: lam_min)
     if rounded is not None:
         notes.append(rounded)
     if lam_min >= -PSD_RTOL * lam_max:
