@@ -323,3 +323,11 @@ def test_estimates_get_normal_intervals_with_their_n_only(client) -> None:
     del body["input"]["n"]
     problem = assert_problem(post(client, body), *CROSS, "/options/uncertainty")
     assert "give the input's n" in problem["errors"][0]["reason"]
+
+
+def test_the_documented_example_is_answered(client) -> None:
+    from knotwork.api._examples import UNCERTAINTY_EXAMPLE
+
+    doc = post(client, UNCERTAINTY_EXAMPLE).json()
+    assert doc["uncertainty"]["replicates"] == 500
+    assert all(v["vif_interval"] is not None for v in doc["variables"] if not v["aliased"])

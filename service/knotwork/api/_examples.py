@@ -19,6 +19,7 @@ __all__ = [
     "PARTS_EXAMPLE",
     "TABLE_COLUMNS",
     "TABLE_EXAMPLE",
+    "UNCERTAINTY_EXAMPLE",
 ]
 
 #: The orchard plots, column by column.
@@ -46,6 +47,16 @@ TABLE_EXAMPLE: dict[str, Any] = {
         "response": "yield_kg",
     },
     "options": {"threshold": 5, "protect": ["irrigation_l"]},
+}
+
+#: The same plots with intervals for every VIF from 500 resamples of the rows.
+UNCERTAINTY_EXAMPLE: dict[str, Any] = {
+    "input": TABLE_EXAMPLE["input"],
+    "options": {
+        "threshold": 5,
+        "sections": ["variables", "terms", "removal"],
+        "uncertainty": {"method": "bootstrap", "replicates": 500, "seed": 1},
+    },
 }
 
 CORRELATION_EXAMPLE: dict[str, Any] = {

@@ -44,6 +44,7 @@ from ._examples import (
     MOMENTS_EXAMPLE,
     PARTS_EXAMPLE,
     TABLE_EXAMPLE,
+    UNCERTAINTY_EXAMPLE,
 )
 from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES
 
@@ -130,6 +131,7 @@ class AssessOperation(Operation):
                         moments=MOMENTS_EXAMPLE,
                         moments_in_parts=PARTS_EXAMPLE,
                         estimates=ESTIMATES_EXAMPLE,
+                        table_with_intervals=UNCERTAINTY_EXAMPLE,
                     ),
                 ),
                 **binary,
