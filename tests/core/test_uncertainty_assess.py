@@ -227,3 +227,24 @@ def test_tiny_tables_give_an_answer_or_a_named_error_never_a_crash() -> None:
                 assess(s, options, r)
             except KnotworkError:
                 pass  # a named error (too few rows, a constant label): the answer is a 4xx
+
+
+def test_a_level_seen_only_in_dropped_rows_is_no_column() -> None:
+    # Found by a random search over small tables: the level "z" occurs only in a row that
+    # drop_rows leaves out; it was looked up among the kept rows' levels and failed.
+    columns = {
+        "x0": np.array([1.0, 2, 3, 4, 5, 6, 7, 8]),
+        "x1": np.array([1.0, 3, 2, 5, 4, np.nan, 6, 9]),
+    }
+    labels = {"g": ["a", "a", "b", "b", "a", "z", "b", "a"]}
+    summary, rows = design_from_table(columns, categorical=labels, missing="drop_rows")
+    assert summary.names == ("x0", "x1", "g[b]") and rows is not None
+    kept = [0, 1, 2, 3, 4, 6, 7]
+    alone = from_table(
+        {k: v[kept] for k, v in columns.items()},
+        categorical={"g": [labels["g"][i] for i in kept]},
+    )
+    # The same rows, with and without the dropped one in the arrays: the kernel's blocks
+    # differ, so rounding only (1e-12).
+    np.testing.assert_allclose(summary.correlation, alone.correlation, rtol=1e-12, atol=1e-14)
+    assert np.array_equal(rows.x[:, 2], np.array([0.0, 0, 1, 1, 0, 1, 0]))

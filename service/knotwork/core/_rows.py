@@ -287,7 +287,9 @@ def _from_table(  # noqa: C901
         codes = np.full(n_rows, np.nan)
         index = {lev: i for i, lev in enumerate(levels)}
         for row, s in enumerate(vals):
-            if s is not None:
+            # A level seen only in rows left out (drop_rows) has no column: those rows are
+            # not used, so their code stays missing.
+            if s is not None and s in index:
                 codes[row] = index[s]
         cols = indicator_columns(name, levels)
         for i, cname in enumerate(cols, start=1):
