@@ -1357,10 +1357,14 @@ class _Resampler:
         raw = np.empty((sums.shape[0], p, p))
         raw[:, self.ju, self.ku] = sums[:, p + 1 :]
         raw[:, self.ku, self.ju] = sums[:, p + 1 :]
-        com = raw - s[:, :, None] * s[:, None, :] / total[:, None, None]
+        # A replicate that drew only rows of weight 0 has no total: every column counts as
+        # constant there (the replicate is singular), without a division by zero.
+        empty = ~(total > 0)
+        safe = np.where(empty, 1.0, total)
+        com = raw - s[:, :, None] * s[:, None, :] / safe[:, None, None]
         diag_raw = np.diagonal(raw, axis1=1, axis2=2)
         diag = np.diagonal(com, axis1=1, axis2=2)
-        constant = diag <= _CONSTANT_SHARE * diag_raw
+        constant = (diag <= _CONSTANT_SHARE * diag_raw) | empty[:, None]
         return com, constant
 
 
