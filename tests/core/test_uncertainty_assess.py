@@ -248,3 +248,15 @@ def test_a_level_seen_only_in_dropped_rows_is_no_column() -> None:
     # differ, so rounding only (1e-12).
     np.testing.assert_allclose(summary.correlation, alone.correlation, rtol=1e-12, atol=1e-14)
     assert np.array_equal(rows.x[:, 2], np.array([0.0, 0, 1, 1, 0, 1, 0]))
+
+
+def test_replicates_without_any_weighted_row_are_singular(rng: np.random.Generator) -> None:
+    # Six rows of weight 1 among sixty: a replicate draws none of them with probability
+    # (54/60)^60 = 0.2%, and few of them often; such replicates are counted as singular
+    # (pytest turns a division by zero into an error here).
+    x = rng.standard_normal((60, 2))
+    w = np.zeros(60)
+    w[:6] = 1.0
+    result = bootstrap_intervals(x, ["a", "b"], weights=w, replicates=2000, seed=0)
+    assert result.singular_replicates > 0
+    assert result.usable_replicates + result.singular_replicates == 2000
