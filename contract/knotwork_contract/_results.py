@@ -857,10 +857,11 @@ class Uncertainty(_Result, frozen=True):
     threshold
         The VIF threshold of the p-values and shares (a rule of thumb, common practice).
     n
-        normal: the observations the distribution of R_j^2 assumes (the summary's n).
+        The observations behind the VIFs (the summary's n), which the normal distribution of
+        R_j^2 assumes.
     rank
-        normal: predictors in the model the distribution assumes (p, or fewer when exact
-        dependencies leave fewer independent predictors); each R_j^2 has rank - 1 others.
+        The independent predictors behind the finite VIFs (p, or fewer when exact dependencies
+        leave fewer); in the normal distribution each R_j^2 has rank - 1 others.
     approximate
         normal: columns whose interval is an approximation because they cannot be normal
         (indicator columns of a categorical variable, columns of a multi-column term).
