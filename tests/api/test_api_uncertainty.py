@@ -7,24 +7,15 @@ from typing import Any
 
 import numpy as np
 import pytest
+from answer_fields import UNCERTAINTY_TERM_FIELDS, UNCERTAINTY_VARIABLE_FIELDS
 from bodies_and_problems import ARROW, JSON, PARQUET, arrow_stream, arrow_table, assert_problem
 from bodies_and_problems import parquet as parquet_body
 from numeric import assert_close_answers
 
 from knotwork_contract import REPLICATES_MAX, REPLICATES_MIN
 
-NEW_VARIABLE_FIELDS = (
-    "vif_interval",
-    "threshold_p_value",
-    "share_above_threshold",
-    "share_dropped",
-)
-NEW_TERM_FIELDS = (
-    "gvif_interval",
-    "gvif_scaled_interval",
-    "share_above_threshold",
-    "share_dropped",
-)
+NEW_VARIABLE_FIELDS = UNCERTAINTY_VARIABLE_FIELDS
+NEW_TERM_FIELDS = UNCERTAINTY_TERM_FIELDS
 
 
 def rows(n: int = 120, seed: int = 5) -> tuple[dict[str, list[float]], dict[str, list[str]]]:

@@ -15,7 +15,7 @@ from typing import Any
 import httpx
 import numpy as np
 import pytest
-from answer_fields import VARIABLE_FIELDS
+from answer_fields import UNCERTAINTY_FRAME_COLUMNS, VARIABLE_FIELDS
 from kc_support import bakery_frame
 from litestar.testing import TestClient
 
@@ -25,13 +25,7 @@ from knotwork_client import Client, InputRejectedError, UncertaintyOptions, summ
 from knotwork_client._cli import CSV_FIELDS, main
 from knotwork_client._encode import normalize_options
 
-INTERVAL_COLUMNS = (
-    "vif_low",
-    "vif_high",
-    "threshold_p_value",
-    "share_above_threshold",
-    "share_dropped",
-)
+INTERVAL_COLUMNS = UNCERTAINTY_FRAME_COLUMNS
 PREDICTORS = ["oven_hours", "flour_kg", "staff_shifts", "van_trips", "market_stalls", "region"]
 
 
