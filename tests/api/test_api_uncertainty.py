@@ -49,6 +49,10 @@ def test_without_the_option_every_field_is_as_before_and_the_new_ones_are_null(c
     plain = post(client, table_body()).json()
     normal = post(client, table_body({"uncertainty": {"method": "normal"}})).json()
     assert plain["uncertainty"] is None
+    # The new fields come last, in the contract's order (JSON keys follow the fields).
+    assert tuple(plain["variables"][0])[-4:] == NEW_VARIABLE_FIELDS
+    assert tuple(plain["terms"][0])[-4:] == NEW_TERM_FIELDS
+    assert tuple(plain)[-1] == "uncertainty"
     for v in plain["variables"]:
         assert all(v[f] is None for f in NEW_VARIABLE_FIELDS)
     for t in plain["terms"]:
