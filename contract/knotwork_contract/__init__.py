@@ -25,6 +25,7 @@ from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
 from ._requests import (
     DETAILS,
+    FAMILIES,
     SECTIONS,
     AssessOptions,
     AssessRequest,
@@ -49,6 +50,7 @@ from ._results import (
     Conditioning,
     Dependency,
     FarrarGlauber,
+    ModelFit,
     Notice,
     PartialPair,
     ProportionRow,
@@ -69,6 +71,7 @@ from ._results import (
 
 __all__ = [
     "DETAILS",
+    "FAMILIES",
     "QUERY_PARAMETERS",
     "RESULT_TYPES",
     "SECTIONS",
@@ -85,6 +88,7 @@ __all__ = [
     "Dependency",
     "FarrarGlauber",
     "Input",
+    "ModelFit",
     "Moments",
     "MomentsInput",
     "MomentsPart",

@@ -69,6 +69,10 @@ class VariableInflation(_Result, frozen=True):
         Whether the VIF exceeds the threshold (always True when aliased).
     aliased
         Whether the predictor takes part in an exact linear dependency.
+    design_vif
+        Under a GLM family, the VIF of the plain design (unweighted, as least squares would
+        see it), beside ``vif``, which is weighted at the fit; None for the gaussian family
+        and when aliased in the plain design.
     """
 
     name: str
@@ -78,6 +82,7 @@ class VariableInflation(_Result, frozen=True):
     se_inflation: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    design_vif: float | None = None
 
 
 class TermInflation(_Result, frozen=True):
@@ -101,6 +106,10 @@ class TermInflation(_Result, frozen=True):
         Whether ``gvif_scaled`` exceeds the square root of the threshold (True when aliased).
     aliased
         Whether any of its columns takes part in an exact dependency.
+    design_gvif
+        Under a GLM family, the GVIF of the plain design (unweighted), beside ``gvif``, which
+        is weighted at the fit; None for the gaussian family and when aliased in the plain
+        design.
     """
 
     name: str
@@ -110,6 +119,7 @@ class TermInflation(_Result, frozen=True):
     gvif_scaled: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    design_gvif: float | None = None
 
 
 class Tangle(_Result, frozen=True):
@@ -808,6 +818,49 @@ class RepairReport(_Result, frozen=True):
     singular: bool = False
 
 
+class ModelFit(_Result, frozen=True):
+    """The generalized linear model fitted by IRLS whose weighted design was assessed.
+
+    Attributes
+    ----------
+    family
+        ``"binomial"``, ``"poisson"``, ``"gamma"`` or ``"tweedie"``.
+    link
+        The link function: ``"logit"`` (binomial) or ``"log"`` (the others).
+    var_power
+        The tweedie variance power (variance proportional to mean^v); None for other families.
+    converged
+        Whether IRLS met its criterion (an answer is only given for a converged fit).
+    iterations
+        IRLS iterations used (one weighted least-squares solve each).
+    tolerance
+        The convergence criterion: no linear predictor moved by more than ``tolerance`` times
+        (1 + the largest absolute linear predictor) in the last iteration.
+    deviance
+        Deviance at the fit (sum over rows of prior weight times unit deviance; not divided by
+        the dispersion).
+    dispersion
+        The dispersion used for the coefficients' covariance: 1 for binomial and poisson,
+        Pearson chi-square over (n - rank) for gamma and tweedie. The diagnostics do not
+        depend on it.
+    n
+        Observations used by the fit (rows with a positive prior weight), not a sum of weights.
+    n_coefficients
+        Coefficients fitted, the intercept included.
+    """
+
+    family: str = ""
+    link: str = ""
+    var_power: float | None = None
+    converged: bool = False
+    iterations: int = 0
+    tolerance: float = math.nan
+    deviance: float = math.nan
+    dispersion: float = math.nan
+    n: int = 0
+    n_coefficients: int = 0
+
+
 class Assessment(_Result, frozen=True):
     """The full collinearity assessment of one design.
 
@@ -858,6 +911,9 @@ class Assessment(_Result, frozen=True):
         keeps max VIF, effective df and R^2 at eight k, the first and the last included) and
         the choices' original-unit coefficients, and the components' loadings, variable
         correlations, variances, original-unit and OLS coefficients and R^2 by component.
+    model
+        The generalized linear model fitted for a non-gaussian ``family``: every diagnostic
+        is then that of the design weighted at its fit. None for the gaussian family.
     """
 
     input_kind: str = ""
@@ -879,6 +935,7 @@ class Assessment(_Result, frozen=True):
     warnings: Sequence[Notice] = ()
     cautions: Sequence[str] = ()
     detail: str = "full"
+    model: ModelFit | None = None
 
 
 #: Every record an answer can contain, the answer itself last.
@@ -904,5 +961,6 @@ RESULT_TYPES: tuple[type[msgspec.Struct], ...] = (
     RemedyRow,
     Comparison,
     RepairReport,
+    ModelFit,
     Assessment,
 )

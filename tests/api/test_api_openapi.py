@@ -86,6 +86,10 @@ def test_assess_takes_json_arrow_and_parquet(document: dict[str, Any]) -> None:
         "components_rule",
         "components_limit",
         "detail",
+        "family",
+        "var_power",
+        "offset",
+        "trials",
     }
 
 

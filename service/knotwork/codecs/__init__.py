@@ -16,7 +16,7 @@ from ._errors import (
 )
 from ._json import decode_assess, decode_batch
 from ._prepared import CorrelationData, Limits, MomentsData, Origin, Prepared, TableData
-from ._query import options_from_query
+from ._query import options_from_query, query_options
 
 __all__ = [
     "ARROW_FILE",
@@ -38,6 +38,7 @@ __all__ = [
     "decode_batch",
     "decode_table_body",
     "options_from_query",
+    "query_options",
     "read_table",
     "run",
     "table_data",

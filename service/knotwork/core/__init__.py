@@ -8,12 +8,13 @@ from :mod:`knotwork_contract`.
 
 from knotwork_contract import SECTIONS
 
-from ._assess import Options, assess, check_options
+from ._assess import GLM_OMITTED, Options, assess, assess_glm, check_model, check_options
 from ._components import principal_components
 from ._conditioning import condition_diagnostics
 from ._dependencies import DependencyReport, Spectrum, find_dependencies
 from ._detail import summary_detail
 from ._errors import (
+    FitError,
     InputError,
     KnotworkError,
     MatrixError,
@@ -22,6 +23,7 @@ from ._errors import (
     Problem,
     TooFewDataError,
 )
+from ._glm import FAMILIES, GlmFit, GlmSummaries, summarize_glm
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
 from ._matrices import from_correlation, from_moments, merge_moments
@@ -39,11 +41,16 @@ from ._validation import MISSING_POLICIES, REPAIR_POLICIES
 __all__ = [
     "CAUTIONS",
     "CODES",
+    "FAMILIES",
+    "GLM_OMITTED",
     "INTERCEPT_NAME",
     "MISSING_POLICIES",
     "REPAIR_POLICIES",
     "SECTIONS",
     "DependencyReport",
+    "FitError",
+    "GlmFit",
+    "GlmSummaries",
     "InputError",
     "Interrupted",
     "KnotworkError",
@@ -59,6 +66,8 @@ __all__ = [
     "Term",
     "TooFewDataError",
     "assess",
+    "assess_glm",
+    "check_model",
     "check_options",
     "checkpoint",
     "collinearity_tests",
@@ -77,6 +86,7 @@ __all__ = [
     "removal_sequence",
     "ridge_analysis",
     "stop_when",
+    "summarize_glm",
     "summary_detail",
     "variance_inflation",
 ]
