@@ -46,7 +46,7 @@ _RETRIED_ERRORS: tuple[type[Exception], ...] = (
     httpx.RemoteProtocolError,
 )
 
-_TABLE_ARGS = ("response", "weights", "categorical", "names", "columns")
+_TABLE_ARGS = ("response", "weights", "categorical", "names", "columns", "offset", "trials")
 
 BatchResult = Assessment | ProblemDetails
 
@@ -305,10 +305,13 @@ class Client(_BaseClient):
             path to a CSV, Parquet or Arrow file) or a summary (:class:`Summary`,
             :class:`Correlation`, :class:`Moments`). Large tables go as Arrow IPC.
         **options
-            For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``.
+            For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``,
+            and under a GLM family ``offset`` and ``trials`` (column names).
             Service options: ``threshold``, ``protect``, ``intercept``, ``missing``,
             ``repair``, ``sections``, ``ridge`` (``{"grid": [...]}``), ``components``
-            (``{"rule": ..., "limit": ...}``). ``encoding``: ``auto``, ``json`` or ``arrow``.
+            (``{"rule": ..., "limit": ...}``), ``detail``, ``family`` (``gaussian``,
+            ``binomial``, ``poisson``, ``gamma``, ``tweedie``) and ``var_power`` (tweedie).
+            ``encoding``: ``auto``, ``json`` or ``arrow``.
 
         Raises
         ------

@@ -23,6 +23,7 @@ from knotwork_contract import (
     Conditioning,
     Dependency,
     FarrarGlauber,
+    ModelFit,
     Problem,
     ProblemDocument,
     Removal,
@@ -44,6 +45,7 @@ __all__ = [
     "Dependency",
     "FarrarGlauber",
     "FieldError",
+    "ModelFit",
     "ProblemDetails",
     "Removal",
     "RemovalStep",
@@ -81,19 +83,23 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
         return max((v.vif for v in self.variables if v.vif is not None), default=math.nan)
 
     def to_frame(self) -> Any:
-        """Per-variable table as a DataFrame indexed by name (``vif`` NaN when aliased)."""
+        """Per-variable table as a DataFrame indexed by name (``vif`` NaN when aliased).
+
+        Under a GLM family (``model`` is set) a last column ``design_vif`` holds the plain
+        design's VIF beside ``vif``, the VIF weighted at the fit.
+        """
         pd = _pandas()
-        return pd.DataFrame(
-            {
-                "vif": [_f(v.vif) for v in self.variables],
-                "tolerance": [_f(v.tolerance) for v in self.variables],
-                "r_squared": [_f(v.r_squared) for v in self.variables],
-                "se_inflation": [_f(v.se_inflation) for v in self.variables],
-                "above_threshold": [v.above_threshold for v in self.variables],
-                "aliased": [v.aliased for v in self.variables],
-            },
-            index=pd.Index([v.name for v in self.variables], name="name"),
-        )
+        table = {
+            "vif": [_f(v.vif) for v in self.variables],
+            "tolerance": [_f(v.tolerance) for v in self.variables],
+            "r_squared": [_f(v.r_squared) for v in self.variables],
+            "se_inflation": [_f(v.se_inflation) for v in self.variables],
+            "above_threshold": [v.above_threshold for v in self.variables],
+            "aliased": [v.aliased for v in self.variables],
+        }
+        if self.model is not None:
+            table["design_vif"] = [_f(v.design_vif) for v in self.variables]
+        return pd.DataFrame(table, index=pd.Index([v.name for v in self.variables], name="name"))
 
     def removal_frame(self) -> Any:
         """The removal steps as a DataFrame indexed by step number, from 1.

@@ -349,11 +349,11 @@ def _check_response(
         if bad.any():
             row, v = _first(bad, y, rows)
             what = (
-                "a poisson response counts events"
+                "a poisson response counts events and"
                 if fam.name == "poisson"
-                else ("a tweedie response")
+                else "a tweedie response"
             )
-            raise InputError.at(at, f"{what} and cannot be negative; row {row} is {v:g}")
+            raise InputError.at(at, f"{what} cannot be negative; row {row} is {v:g}")
         if (y == 0).all():
             raise FitError.at(
                 at,
