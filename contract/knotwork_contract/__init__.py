@@ -8,6 +8,7 @@ of rows, their exact merge, pairwise deletion, indicator-column names) is here t
 service and the client summarize rows with the same arithmetic.
 """
 
+from ._families import BOUNDARY, GLM_LINKS, GlmFamily
 from ._moments import (
     Moments,
     NotFinite,
@@ -70,8 +71,10 @@ from ._results import (
 )
 
 __all__ = [
+    "BOUNDARY",
     "DETAILS",
     "FAMILIES",
+    "GLM_LINKS",
     "QUERY_PARAMETERS",
     "RESULT_TYPES",
     "SECTIONS",
@@ -87,6 +90,7 @@ __all__ = [
     "CorrelationResponse",
     "Dependency",
     "FarrarGlauber",
+    "GlmFamily",
     "Input",
     "ModelFit",
     "Moments",

@@ -15,9 +15,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.linalg
-from scipy.special import expit, xlogy
 
-from knotwork_contract import comoments, correlation_from_comoments
+from knotwork_contract import GLM_LINKS, GlmFamily, comoments, correlation_from_comoments
 from knotwork_contract import escape as esc
 
 from ._errors import (
@@ -34,15 +33,10 @@ from ._rows import column_array, from_table
 from ._summary import INTERCEPT_NAME, Summary, Term
 from ._validation import check_terms, common_length
 
-#: The families, each with its link (the canonical one, or log for gamma and tweedie).
+#: The families, each with its link (the canonical one, or log for gamma and tweedie); the
+#: arithmetic of each family is the contract's (:class:`knotwork_contract.GlmFamily`).
 FAMILIES = ("gaussian", "binomial", "poisson", "gamma", "tweedie")
-LINKS: Mapping[str, str] = {
-    "gaussian": "identity",
-    "binomial": "logit",
-    "poisson": "log",
-    "gamma": "log",
-    "tweedie": "log",
-}
+LINKS: Mapping[str, str] = GLM_LINKS
 GLM_MISSING_POLICIES = ("reject", "drop_rows")
 
 #: Default iteration limit (statsmodels' default too).
@@ -61,9 +55,6 @@ _BLOCK_BYTES = 4 << 20
 _RANK_RTOL = 1e-10
 #: Step halvings tried when a step increases the deviance.
 _MAX_HALVINGS = 30
-#: A fitted probability within this distance of 0 or 1 (or a fitted mean this small against
-#: the mean response, for a zero count) counts as having reached the boundary.
-_BOUNDARY = 1e-10
 #: Iterations in a row with fitted values at the boundary, moving further out, that mark a
 #: coefficient growing without bound (separation); a converging fit settles well before.
 _DIVERGING_STREAK = 8
@@ -159,106 +150,7 @@ class GlmSummaries:
 # Families
 
 
-@dataclass(frozen=True, slots=True)
-class _Family:
-    """Variance, link and deviance of one family; ``a`` is prior weight times trials."""
-
-    name: str
-    power: float  # variance power: 0 gaussian, 1 poisson, 2 gamma, v tweedie (binomial: unused)
-
-    def start(self, y: np.ndarray, a: np.ndarray) -> np.ndarray:
-        """Starting linear predictor (not in the design's column space; IRLS projects it)."""
-        if self.name == "gaussian":
-            return y.copy()
-        if self.name == "binomial":
-            mu = (a * y + 0.5) / (a + 1.0)
-            logit: np.ndarray = np.log(mu / (1.0 - mu))
-            return logit
-        mean = float(np.dot(a, y) / np.sum(a))
-        start: np.ndarray = np.log((y + mean) / 2.0)
-        return start
-
-    def mean(self, eta: np.ndarray) -> np.ndarray:
-        if self.name == "gaussian":
-            return eta
-        if self.name == "binomial":
-            fitted: np.ndarray = expit(eta)
-            return fitted
-        exp: np.ndarray = np.exp(eta)
-        return exp
-
-    def working(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> tuple[np.ndarray, ...]:
-        """Working weights w and score terms s = a (y - mu) mu'(eta) / V(mu), both at eta.
-
-        Neither divides by a small quantity, so both stay finite as fitted values approach the
-        boundary; the working response is eta + s / w.
-        """
-        with np.errstate(all="ignore"):
-            if self.name == "gaussian":
-                return a.copy(), a * (y - eta)
-            if self.name == "binomial":
-                p, q = expit(eta), expit(-eta)
-                return a * (p * q), a * (y * q - (1.0 - y) * p)
-            if self.name == "poisson":
-                mu = np.exp(eta)
-                return a * mu, a * (y - mu)
-            if self.name == "gamma":
-                return a.copy(), a * (y * np.exp(-eta) - 1.0)
-            v = self.power
-            mu1 = np.exp((1.0 - v) * eta)
-            mu2 = np.exp((2.0 - v) * eta)
-            return a * mu2, a * (y * mu1 - mu2)
-
-    def deviance(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> float:
-        """Sum of a_i times the unit deviance at eta (inf or NaN when eta is out of range)."""
-        with np.errstate(all="ignore"):
-            if self.name == "gaussian":
-                d = (y - eta) ** 2
-            elif self.name == "binomial":
-                d = 2.0 * (
-                    xlogy(y, y)
-                    + xlogy(1.0 - y, 1.0 - y)
-                    + y * np.logaddexp(0.0, -eta)
-                    + (1.0 - y) * np.logaddexp(0.0, eta)
-                )
-            elif self.name == "poisson":
-                d = 2.0 * (xlogy(y, y) - y * eta - y + np.exp(eta))
-            elif self.name == "gamma":
-                ratio = y * np.exp(-eta)
-                d = 2.0 * (-np.log(ratio) + ratio - 1.0)
-            else:
-                v = self.power
-                d = 2.0 * (
-                    y ** (2.0 - v) / ((1.0 - v) * (2.0 - v))
-                    - y * np.exp((1.0 - v) * eta) / (1.0 - v)
-                    + np.exp((2.0 - v) * eta) / (2.0 - v)
-                )
-            return float(np.dot(a, d))
-
-    def pearson(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> float:
-        """Pearson chi-square: sum of a_i (y_i - mu_i)^2 / V(mu_i)."""
-        mu = self.mean(eta)
-        if self.name == "gaussian":
-            var = np.ones_like(mu)
-        elif self.name == "binomial":
-            var = expit(eta) * expit(-eta)
-        else:
-            var = mu**self.power
-        return float(np.dot(a, (y - mu) ** 2 / var))
-
-    def at_boundary(self, eta: np.ndarray, y: np.ndarray) -> np.ndarray:
-        """Rows whose fitted value has reached the boundary of its range: a probability
-        within ``_BOUNDARY`` of 0 or 1, or a fitted mean of a zero count below ``_BOUNDARY``
-        times the mean response."""
-        if self.name == "binomial":
-            return np.abs(eta) > -math.log(_BOUNDARY)  # type: ignore[no-any-return]
-        if self.name in ("poisson", "tweedie"):
-            scale = float(np.mean(y))
-            return (y == 0) & (eta < math.log(_BOUNDARY * scale))  # type: ignore[no-any-return]
-        return np.zeros(eta.shape, dtype=bool)
-
-
-def _family(family: object, var_power: object) -> _Family:
+def _family(family: object, var_power: object) -> GlmFamily:
     if family not in FAMILIES:
         raise OptionError.at(
             "/family", f"must be one of {', '.join(repr(f) for f in FAMILIES)}; got {family!r}"
@@ -273,13 +165,13 @@ def _family(family: object, var_power: object) -> _Family:
             raise OptionError.at(
                 "/var_power", f"var_power must lie strictly between 1 and 2; got {var_power!r}"
             )
-        return _Family("tweedie", float(var_power))  # type: ignore[arg-type]
+        return GlmFamily("tweedie", float(var_power))  # type: ignore[arg-type]
     if var_power is not None:
         raise OptionError.at(
             "/var_power", f"var_power applies to the tweedie family only, not {family!r}"
         )
     power = {"gaussian": 0.0, "binomial": 1.0, "poisson": 1.0, "gamma": 2.0}[str(family)]
-    return _Family(str(family), power)
+    return GlmFamily(str(family), power)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -309,7 +201,11 @@ def _first(bad: np.ndarray, values: np.ndarray, rows: np.ndarray) -> tuple[int, 
 
 
 def _check_response(
-    fam: _Family, y: np.ndarray, trials: np.ndarray | None, ptr: Mapping[str, str], rows: np.ndarray
+    fam: GlmFamily,
+    y: np.ndarray,
+    trials: np.ndarray | None,
+    ptr: Mapping[str, str],
+    rows: np.ndarray,
 ) -> None:
     """Values the family cannot take, then responses with no finite estimate at all."""
     at = ptr["response"]
@@ -368,7 +264,7 @@ def _check_response(
 
 
 def _separating_column(
-    fam: _Family, x: np.ndarray, y: np.ndarray, intercept: bool, names: Sequence[str]
+    fam: GlmFamily, x: np.ndarray, y: np.ndarray, intercept: bool, names: Sequence[str]
 ) -> tuple[int, str] | None:
     """A single column whose maximum-likelihood coefficient is infinite, with the reason.
 
@@ -455,7 +351,7 @@ class _State:
 
 
 def _irls(
-    fam: _Family,
+    fam: GlmFamily,
     x: np.ndarray,
     y: np.ndarray,
     a: np.ndarray,
@@ -972,7 +868,7 @@ def design_summary(
     return replace(s, terms=_terms(terms, names), sources=pointers)
 
 
-def _check_levels(fam: _Family, y: np.ndarray, labels: Mapping[str, np.ndarray]) -> None:
+def _check_levels(fam: GlmFamily, y: np.ndarray, labels: Mapping[str, np.ndarray]) -> None:
     """A level of a categorical variable whose rows all have the same outcome at the boundary
     (only successes or only failures; only zero counts) has an infinite coefficient, whichever
     level is the reference; named here by its label, before any fit."""
