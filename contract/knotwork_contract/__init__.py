@@ -8,7 +8,7 @@ of rows, their exact merge, pairwise deletion, indicator-column names) is here t
 service and the client summarize rows with the same arithmetic.
 """
 
-from ._families import BOUNDARY, GLM_LINKS, GlmFamily
+from ._families import BOUNDARY, GLM_LINKS, IRLS_MAX_ITER, IRLS_TOLERANCE, GlmFamily
 from ._moments import (
     Moments,
     NotFinite,
@@ -75,6 +75,8 @@ __all__ = [
     "DETAILS",
     "FAMILIES",
     "GLM_LINKS",
+    "IRLS_MAX_ITER",
+    "IRLS_TOLERANCE",
     "QUERY_PARAMETERS",
     "RESULT_TYPES",
     "SECTIONS",

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["BOUNDARY", "GLM_LINKS", "GlmFamily"]
+__all__ = ["BOUNDARY", "GLM_LINKS", "IRLS_MAX_ITER", "IRLS_TOLERANCE", "GlmFamily"]
 
 #: The link of each family (the canonical one, or log for gamma and tweedie).
 GLM_LINKS: Mapping[str, str] = {
@@ -32,6 +32,12 @@ GLM_LINKS: Mapping[str, str] = {
     "gamma": "log",
     "tweedie": "log",
 }
+
+#: IRLS has converged when no linear predictor moved by more than this times (1 + max |eta|) in
+#: the last iteration (the service's ``model.tolerance``).
+IRLS_TOLERANCE = 1e-9
+#: IRLS iterations allowed before the fit counts as not converging.
+IRLS_MAX_ITER = 100
 
 #: A fitted probability within this distance of 0 or 1 (or a fitted mean this small against
 #: the mean response, for a zero count) counts as having reached the boundary.

@@ -28,6 +28,7 @@ from ._exceptions import (
     ServiceError,
     TransportError,
 )
+from ._glm_dask import GlmSummaries, summarize_glm_dask
 from ._inputs import Correlation, Moments
 from ._results import (
     Assessment,
@@ -65,6 +66,7 @@ __all__ = [
     "Dependency",
     "FarrarGlauber",
     "FieldError",
+    "GlmSummaries",
     "InputRejectedError",
     "KnotworkClientError",
     "MissingValuesError",
@@ -92,4 +94,5 @@ __all__ = [
     "merge_summaries",
     "summarize",
     "summarize_dask",
+    "summarize_glm_dask",
 ]

@@ -28,6 +28,7 @@ from ._exceptions import (
     ServiceError,
     TransportError,
 )
+from ._glm_dask import GlmSummaries
 from ._results import Assessment, ProblemDetails
 from ._version import VERSION
 
@@ -303,7 +304,9 @@ class Client(_BaseClient):
         data
             Rows (a DataFrame, an Arrow table, a named numpy array, a mapping of columns, a
             path to a CSV, Parquet or Arrow file) or a summary (:class:`Summary`,
-            :class:`Correlation`, :class:`Moments`). Large tables go as Arrow IPC.
+            :class:`Correlation`, :class:`Moments`). Large tables go as Arrow IPC. A GLM fitted
+            on a Dask dataframe (:func:`summarize_glm_dask`) goes as one batch of its two
+            summaries, and the answer is assembled as for rows.
         **options
             For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``,
             and under a GLM family ``offset`` and ``trials`` (column names).
@@ -320,6 +323,8 @@ class Client(_BaseClient):
         TransportError
             The service could not be reached through every retry.
         """
+        if isinstance(data, GlmSummaries):
+            return data.combine(self.assess_batch(data.requests(options)), options)  # type: ignore[no-any-return]
         return self._assessment(self._assess_document(data, options))
 
     def _assess_document(self, data: Any, options: dict[str, Any]) -> Any:
@@ -450,6 +455,8 @@ class AsyncClient(_BaseClient):
 
     async def assess(self, data: Any, **options: Any) -> Assessment:
         """Assess one model: ``POST /v1/assess`` (see :meth:`Client.assess`)."""
+        if isinstance(data, GlmSummaries):
+            return data.combine(await self.assess_batch(data.requests(options)), options)  # type: ignore[no-any-return]
         return self._assessment(await self._assess_document(data, options))
 
     async def _assess_document(self, data: Any, options: dict[str, Any]) -> Any:

@@ -16,7 +16,14 @@ from dataclasses import dataclass, replace
 import numpy as np
 import scipy.linalg
 
-from knotwork_contract import GLM_LINKS, GlmFamily, comoments, correlation_from_comoments
+from knotwork_contract import (
+    GLM_LINKS,
+    IRLS_MAX_ITER,
+    IRLS_TOLERANCE,
+    GlmFamily,
+    comoments,
+    correlation_from_comoments,
+)
 from knotwork_contract import escape as esc
 
 from ._errors import (
@@ -40,12 +47,12 @@ LINKS: Mapping[str, str] = GLM_LINKS
 GLM_MISSING_POLICIES = ("reject", "drop_rows")
 
 #: Default iteration limit (statsmodels' default too).
-MAX_ITER = 100
+MAX_ITER = IRLS_MAX_ITER
 #: Default convergence tolerance: the fit has converged when no linear predictor moved by more
 #: than ``TOL * (1 + max |eta|)`` in the last iteration. The working weights are functions of
 #: eta, and for the logit and log links d(log w)/d(eta) is at most 1 in size, so this bounds
 #: the relative change of every weight in the last step (see :func:`fit_glm`).
-TOL = 1e-9
+TOL = IRLS_TOLERANCE
 
 #: Row blocks of the weighted Gram product are about this many bytes (as in the summaries).
 _BLOCK_BYTES = 4 << 20
