@@ -402,6 +402,24 @@ BAD = [
         "or merge its rare values or categories",
     ),
     (
+        {**_table(BOUGHT, t=np.full(N, 1e300)), "trials": "t"},
+        {"family": "binomial"},
+        422,
+        "fit-failed",
+        "/input/columns/t",
+        "the fit overflowed double precision: values this large (or small) cannot be fitted as "
+        "given; rescale the column (for example to other units)",
+    ),
+    (
+        {**_table(BOUGHT, o=_with(np.zeros(N), 0, 1e308)), "offset": "o"},
+        {"family": "binomial"},
+        422,
+        "fit-failed",
+        "/input/columns/o",
+        "the fit overflowed double precision: values this large (or small) cannot be fitted as "
+        "given; rescale the column (for example to other units)",
+    ),
+    (
         _table(np.ones(N)),
         {"family": "binomial"},
         422,

@@ -378,14 +378,19 @@ def _irls(
     for it in range(1, max_iter + 1):
         checkpoint()
         w, s = fam.working(eta, y, a)
-        gram = _weighted_gram(x, w)
+        with np.errstate(all="ignore"):
+            gram = _weighted_gram(x, w)
+            # The first step regresses the working response (from fitted values, not
+            # coefficients); later steps solve for the change.
+            rhs = x.T @ (w * (eta - offset) + s) if it == 1 else x.T @ s
+        if not (np.isfinite(gram).all() and np.isfinite(rhs).all()):
+            return state, "overflow"  # values too large for double precision
         if it == 1:
-            # First step from fitted values, not coefficients: regress the working response.
-            target, rank = _solve(gram, x.T @ (w * (eta - offset) + s))
+            target, rank = _solve(gram, rhs)
             delta = target - coef
             d_eta = x @ target + offset - eta
         else:
-            delta, rank = _solve(gram, x.T @ s)
+            delta, rank = _solve(gram, rhs)
             d_eta = x @ delta
         size = float(np.max(np.abs(d_eta)))
         limit = tol * (1.0 + float(np.max(np.abs(eta + d_eta))))
@@ -426,6 +431,29 @@ def _diverging_columns(
     if not size.size or size.max() <= 0:
         return []
     return [names[int(j)] for j in np.flatnonzero(size >= 0.1 * size.max())]
+
+
+def _largest(
+    x: np.ndarray,
+    offset: np.ndarray,
+    weights: np.ndarray,
+    trials: np.ndarray | None,
+    col_ptrs: Sequence[str],
+    ptr: Mapping[str, str],
+) -> str:
+    """The pointer of the input holding the value farthest from 1 in magnitude (on a log
+    scale): the likeliest cause of an overflow."""
+
+    def spread(v: np.ndarray) -> float:
+        with np.errstate(all="ignore"):
+            mags = np.abs(np.log10(np.abs(v[v != 0]))) if np.any(v != 0) else np.zeros(1)
+        return float(np.max(mags, initial=0.0))
+
+    candidates = [(spread(x[:, j]), col_ptrs[j]) for j in range(x.shape[1])]
+    candidates += [(spread(offset), ptr["offset"]), (spread(weights), ptr["weights"])]
+    if trials is not None:
+        candidates.append((spread(trials), ptr["trials"]))
+    return max(candidates, key=lambda c: c[0])[1]
 
 
 def fit_glm(
@@ -641,7 +669,10 @@ def fit_glm(
     if intercept:
         xi[:, 0] = 1.0
     np.subtract(xs, shift, out=xi[:, int(intercept) :])
-    state, outcome = _irls(fam, xi, ys, a, offs, max_iter, tol)
+    # Overflow and division by zero are found by the checks on what they produce (a gram or
+    # deviance that is not finite), so numpy's floating-point warnings are not wanted here.
+    with np.errstate(all="ignore"):
+        state, outcome = _irls(fam, xi, ys, a, offs, max_iter, tol)
 
     if outcome != "converged":
         edge = fam.at_boundary(state.eta, ys)
@@ -655,6 +686,12 @@ def fit_glm(
                 "combination of predictors separates them, so coefficients grow without bound "
                 + (f"(those of {', '.join(repr(c) for c in grown)}) " if grown else "")
                 + "and no finite estimate exists; drop or combine those predictors",
+            )
+        if outcome == "overflow":
+            raise FitError.at(
+                _largest(xs, offs, pws, ms, col_ptrs, ptr),
+                "the fit overflowed double precision: values this large (or small) cannot be "
+                "fitted as given; rescale the column (for example to other units)",
             )
         if outcome == "stalled":
             raise FitError.at(
@@ -672,7 +709,16 @@ def fit_glm(
     if intercept:
         coef[0] -= float(np.dot(shift, coef[1:]))
     w, s = fam.working(state.eta, ys, a)
-    z = state.eta - offs + s / w
+    total = float(np.sum(w))
+    if not (math.isfinite(total) and total > 0 and np.isfinite(w).all()):
+        raise FitError.at(
+            _largest(xs, offs, pws, ms, col_ptrs, ptr),
+            "the working weights at the fit are all 0 or not finite (fitted values at the "
+            "boundary of their range): no information is left to assess; rescale the column "
+            "or check the offset",
+        )
+    with np.errstate(all="ignore"):
+        z = state.eta - offs + s / w
     dispersion = 1.0
     if fam.name in ("gaussian", "gamma", "tweedie"):
         dispersion = fam.pearson(state.eta, ys, a) / (n - state.rank)
