@@ -38,7 +38,13 @@ from knotwork_contract import (
     ProblemDocument,
 )
 
-from ._examples import CORRELATION_EXAMPLE, MOMENTS_EXAMPLE, PARTS_EXAMPLE, TABLE_EXAMPLE
+from ._examples import (
+    CORRELATION_EXAMPLE,
+    GLM_EXAMPLE,
+    MOMENTS_EXAMPLE,
+    PARTS_EXAMPLE,
+    TABLE_EXAMPLE,
+)
 from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES
 
 __all__ = [
@@ -123,6 +129,7 @@ class AssessOperation(Operation):
                         correlation=CORRELATION_EXAMPLE,
                         moments=MOMENTS_EXAMPLE,
                         moments_in_parts=PARTS_EXAMPLE,
+                        table_poisson_model=GLM_EXAMPLE,
                     ),
                 ),
                 **binary,
