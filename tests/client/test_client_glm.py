@@ -214,6 +214,9 @@ def _dask_cases() -> dict[str, tuple[pd.DataFrame, dict[str, Any]]]:
     counts = star98.endog.to_numpy(dtype=float)
     star["trials_n"] = counts.sum(axis=1)
     star["share_above"] = counts[:, 0] / star["trials_n"]
+    occupation = sm.datasets.fair.load_pandas().data.drop(columns=["occupation_husb", "affairs"])
+    occupation["occupation"] = [f"level{int(v)}" for v in occupation["occupation"]]
+    occupation["any_time"] = (sm.datasets.fair.load_pandas().data["affairs"] > 0).astype(float)
     exposure = {"offset": "log_exposure", "weights": "prior"}
     return {
         "spector": (spector_frame, {"response": "GRADE", "family": "binomial"}),
@@ -221,10 +224,13 @@ def _dask_cases() -> dict[str, tuple[pd.DataFrame, dict[str, Any]]]:
         "scotland": (scot, {"response": "YES", "family": "gamma"}),
         "fair": (fair, {"response": "affairs", "family": "tweedie", "var_power": 1.5}),
         "star98": (star, {"response": "share_above", "family": "binomial", "trials": "trials_n"}),
+        "fair_occupation": (occupation, {"response": "any_time", "family": "binomial"}),
     }
 
 
-@pytest.mark.parametrize("name", ["spector", "randhie", "scotland", "fair", "star98"])
+@pytest.mark.parametrize(
+    "name", ["spector", "randhie", "scotland", "fair", "star98", "fair_occupation"]
+)
 def test_dask_glm_equals_the_rows_answer(service, name) -> None:
     dd = pytest.importorskip("dask.dataframe")
     frame, args = _dask_cases()[name]

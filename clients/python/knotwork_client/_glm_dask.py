@@ -149,7 +149,8 @@ def _add(*parts: _Part) -> _Part:
 
 @dataclass(frozen=True)
 class _Roles:
-    predictors: tuple[str, ...]
+    predictors: tuple[str, ...]  # numeric predictors
+    levels: tuple[tuple[str, tuple[str, ...]], ...]  # categorical variable -> sorted levels
     response: str
     weights: str | None
     offset: str | None
@@ -157,9 +158,21 @@ class _Roles:
     intercept: bool
 
 
-def _arrays(frame: Any, roles: _Roles) -> tuple[np.ndarray, ...]:
+def _indicators(frame: Any, roles: _Roles, *, reference: bool) -> list[np.ndarray]:
+    """Indicator columns of each categorical variable's levels (the first, the reference,
+    only when ``reference``), in the order of the plain design's names."""
+    out = []
+    for var, levels in roles.levels:
+        labels = frame[var].to_numpy(dtype=object)
+        out += [(labels == level).astype(float) for level in levels[0 if reference else 1 :]]
+    return out
+
+
+def _arrays(frame: Any, roles: _Roles, *, reference: bool = False) -> tuple[np.ndarray, ...]:
     """Design (rows with positive prior weight), response, a = prior x trials, offset."""
     x = frame[list(roles.predictors)].to_numpy(dtype=float)
+    if roles.levels:
+        x = np.column_stack([x, *_indicators(frame, roles, reference=reference)])
     y = frame[roles.response].to_numpy(dtype=float)
     a = np.ones(len(y)) if roles.weights is None else frame[roles.weights].to_numpy(dtype=float)
     used = a > 0
@@ -259,9 +272,11 @@ def _weighted_moments(
     x, y, a, off = _arrays(frame, roles)
     eta = _design(x, shift, roles.intercept) @ coef + off
     w, _ = fam.working(eta, y, a)
+    # The moments cover every level's indicator, the reference's too (as a summary does).
+    full, _, _, _ = _arrays(frame, roles, reference=True)
     if not len(y):
-        return contract.Moments.empty(x.shape[1])
-    return contract.comoments([x[:, j] for j in range(x.shape[1])], w, w > 0)
+        return contract.Moments.empty(full.shape[1])
+    return contract.comoments([full[:, j] for j in range(full.shape[1])], w, w > 0)
 
 
 def _solve(gram: np.ndarray, rhs: np.ndarray) -> tuple[np.ndarray, int]:
@@ -331,6 +346,7 @@ def summarize_glm_dask(
     offset: str | None = None,
     trials: str | None = None,
     columns: Sequence[str] | None = None,
+    categorical: Sequence[str] | None = None,
     intercept: bool = True,
     split_every: int = 8,
 ) -> GlmSummaries:
@@ -346,6 +362,9 @@ def summarize_glm_dask(
         are left out).
     columns
         The predictors (default: every column but the response, weights, offset and trials).
+    categorical
+        Columns to treat as categorical besides the text ones (each becomes indicator columns
+        ``name[level]`` against its first sorted level, judged together as one term).
     intercept
         Whether the model has an intercept.
     split_every
@@ -364,14 +383,14 @@ def summarize_glm_dask(
     candidate coefficients, summed on the client; a step that raises the deviance is halved
     and evaluated again. Converged when the last step moved no linear predictor by more than
     1e-9 (1 + max |eta|), the service's rule. A last pass summarizes the predictors weighted at
-    the fit. Missing values are refused (the fit needs complete rows); categorical columns are
-    not taken on this path (encode them as indicator columns first).
+    the fit. Missing values are refused (the fit needs complete rows). The levels of each
+    categorical column are those of the whole table (from the plain design's summary).
 
     Raises
     ------
     DataError
-        A response the family cannot take, too few rows, missing values, a categorical
-        column, separation (fitted values reaching the boundary) or no convergence.
+        A response the family cannot take, too few rows, missing values, separation (fitted
+        values reaching the boundary) or no convergence.
     """
     try:
         from dask.delayed import delayed
@@ -385,31 +404,29 @@ def summarize_glm_dask(
     roles_used = [c for c in (response, weights, offset, trials) if c is not None]
     if len(set(roles_used)) != len(roles_used):
         raise ValueError("the response, weights, offset and trials must be different columns")
-    numeric = [c for c in ddf.columns if np.issubdtype(ddf[c].dtype, np.number)]
-    text = [c for c in ddf.columns if c not in numeric]
-    predictors = tuple(
-        columns if columns is not None else [c for c in numeric if c not in roles_used]
-    )
-    if text and (columns is None or set(text) & set(predictors)):
-        raise DataError(
-            f"categorical columns {text} are not taken on the Dask GLM path; encode them as "
-            "indicator columns first",
-            [(c, "not numeric") for c in text],
-        )
-    roles = _Roles(predictors, response, weights, offset, trials, intercept)
-    frame = ddf[[*predictors, *roles_used]]
+    cats = [categorical] if isinstance(categorical, str) else list(categorical or ())
+    text = [c for c in ddf.columns if not _is_number(ddf[c].dtype)]
+    cats += [c for c in text if c not in cats]
+    chosen = [c for c in (columns or ddf.columns) if c not in roles_used]
+    predictors = tuple(c for c in chosen if c not in cats)
+    categorical_used = [c for c in chosen if c in cats]
+    used = [*predictors, *categorical_used]
     # The plain design, exactly as summarize_dask would give it (missing values refused).
-    spec = _make_spec(response, weights, None, "reject", None)
-    design_cols = ddf[[*predictors, response, *([weights] if weights else [])]]
+    spec = _make_spec(response, weights, categorical_used, "reject", None)
+    design_cols = ddf[[*used, response, *([weights] if weights else [])]]
     parts = [delayed(_summarize_unchecked, pure=True)(p, spec) for p in design_cols.to_delayed()]
     design = _finish(delayed(_merge)(*parts).compute())
+    design._check_sendable()  # a categorical column with one level, a constant column
+    levels = tuple((var, tuple(design.levels[var])) for var in design.levels)
+    roles = _Roles(predictors, levels, response, weights, offset, trials, intercept)
+    frame = ddf[[*used, *roles_used]]
     counts = frame.isna().sum().compute()
     if int(counts.sum()):
         from ._exceptions import MissingValuesError
 
         raise MissingValuesError({str(k): int(v) for k, v in counts.items() if v})
     partitions = frame.to_delayed()
-    p = len(predictors)
+    p = len(design.predictors)
     first = [delayed(_first_pass, pure=True)(part, roles) for part in partitions]
     stats: _First = delayed(_add_first)(*first).compute()
     _check(fam, stats, p, trials is not None)
@@ -481,7 +498,7 @@ def summarize_glm_dask(
     moments = contract.Moments(float(n), moments.mean, moments.comoments * scale)
     weighted = Summary(
         numeric=predictors,
-        levels={},
+        levels=dict(levels),
         response=None,
         weights=None,
         missing="reject",
@@ -503,6 +520,15 @@ def summarize_glm_dask(
         n_coefficients=k,
     )
     return GlmSummaries(model=model, weighted=weighted, design=design, response=response)
+
+
+def _is_number(dtype: Any) -> bool:
+    """Whether a column's dtype holds numbers (numpy's, or pandas' extension types)."""
+    try:
+        return bool(np.issubdtype(dtype, np.number) or np.issubdtype(dtype, np.bool_))
+    except TypeError:  # a pandas extension dtype (strings, categories)
+        kind = getattr(dtype, "kind", "O")
+        return kind in "iufb"
 
 
 def _merge(*parts: Summary) -> Summary:
