@@ -8,6 +8,7 @@ of rows, their exact merge, pairwise deletion, indicator-column names) is here t
 service and the client summarize rows with the same arithmetic.
 """
 
+from ._families import BOUNDARY, GLM_LINKS, IRLS_MAX_ITER, IRLS_TOLERANCE, GlmFamily
 from ._moments import (
     Moments,
     NotFinite,
@@ -25,6 +26,7 @@ from ._problems import Problem, ProblemDocument
 from ._query import QUERY_PARAMETERS, QueryError, QueryParameter, options_query, parse_query
 from ._requests import (
     DETAILS,
+    FAMILIES,
     REPLICATES_MAX,
     REPLICATES_MIN,
     SECTIONS,
@@ -54,6 +56,7 @@ from ._results import (
     Conditioning,
     Dependency,
     FarrarGlauber,
+    ModelFit,
     Notice,
     PartialPair,
     ProportionRow,
@@ -74,7 +77,12 @@ from ._results import (
 )
 
 __all__ = [
+    "BOUNDARY",
     "DETAILS",
+    "FAMILIES",
+    "GLM_LINKS",
+    "IRLS_MAX_ITER",
+    "IRLS_TOLERANCE",
     "QUERY_PARAMETERS",
     "REPLICATES_MAX",
     "REPLICATES_MIN",
@@ -94,7 +102,9 @@ __all__ = [
     "Dependency",
     "EstimatesInput",
     "FarrarGlauber",
+    "GlmFamily",
     "Input",
+    "ModelFit",
     "Moments",
     "MomentsInput",
     "MomentsPart",

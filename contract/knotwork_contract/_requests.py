@@ -23,6 +23,7 @@ from ._pointers import msgspec_fault
 
 __all__ = [
     "DETAILS",
+    "FAMILIES",
     "REPLICATES_MAX",
     "REPLICATES_MIN",
     "SECTIONS",
@@ -71,6 +72,9 @@ Section = Literal[
 ]
 
 Detail = Literal["summary", "full"]
+Family = Literal["gaussian", "binomial", "poisson", "gamma", "tweedie"]
+#: The model families a table may be assessed under; the first is the default.
+FAMILIES: tuple[str, ...] = get_args(Family)
 #: How much an answer carries; the first is the default.
 DETAILS: tuple[str, ...] = get_args(Detail)
 
@@ -151,7 +155,39 @@ class TableInput(_Wire, frozen=True, tag="table", tag_field="kind"):
         Annotated[Name, Meta(description="Response column, excluded from predictors.")] | None
     ) = None
     weights: (
-        Annotated[Name, Meta(description="Column of non-negative frequency or survey weights.")]
+        Annotated[
+            Name,
+            Meta(
+                description=(
+                    "Column of non-negative frequency or survey weights (prior weights of a "
+                    "GLM family; rows of weight 0 are left out of a fit)."
+                )
+            ),
+        ]
+        | None
+    ) = None
+    offset: (
+        Annotated[
+            Name,
+            Meta(
+                description=(
+                    "A non-gaussian family only: column added to the linear predictor with a "
+                    "coefficient fixed at 1 (for example log exposure), not a predictor."
+                )
+            ),
+        ]
+        | None
+    ) = None
+    trials: (
+        Annotated[
+            Name,
+            Meta(
+                description=(
+                    "The binomial family only: column of positive numbers of trials; the "
+                    "response is then the proportion of successes, in [0, 1]."
+                )
+            ),
+        ]
         | None
     ) = None
 
@@ -435,6 +471,31 @@ class AssessOptions(_Wire, frozen=True):
             )
         ),
     ] = "summary"
+    family: Annotated[
+        Family,
+        Meta(
+            description=(
+                "The model the diagnostics are for (tables only): gaussian (least squares, the "
+                "default), or a generalized linear model fitted to the response, whose "
+                "diagnostics are those of the design weighted at the fit: binomial (logit "
+                "link), poisson (log), gamma (log) or tweedie (log, with var_power)."
+            )
+        ),
+    ] = "gaussian"
+    var_power: (
+        Annotated[
+            float,
+            Meta(
+                gt=1,
+                lt=2,
+                description=(
+                    "The tweedie family's variance power v (variance proportional to mean^v), "
+                    "strictly between 1 and 2; required with tweedie, refused otherwise."
+                ),
+            ),
+        ]
+        | None
+    ) = None
     uncertainty: (
         Annotated[
             UncertaintyOptions,

@@ -69,6 +69,10 @@ class VariableInflation(_Result, frozen=True):
         Whether the VIF exceeds the threshold (always True when aliased).
     aliased
         Whether the predictor takes part in an exact linear dependency.
+    design_vif
+        Under a GLM family, the VIF of the plain design (unweighted, as least squares would
+        see it), beside ``vif``, which is weighted at the fit; None for the gaussian family
+        and when aliased in the plain design.
     vif_interval
         ``[low, high]``: interval for the VIF at ``uncertainty.level`` (normal: for the
         population VIF, by inverting the distribution of R_j^2; bootstrap: percentile
@@ -92,6 +96,7 @@ class VariableInflation(_Result, frozen=True):
     se_inflation: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    design_vif: float | None = None
     vif_interval: Sequence[float] | None = None
     threshold_p_value: float | None = None
     share_above_threshold: float | None = None
@@ -119,6 +124,10 @@ class TermInflation(_Result, frozen=True):
         Whether ``gvif_scaled`` exceeds the square root of the threshold (True when aliased).
     aliased
         Whether any of its columns takes part in an exact dependency.
+    design_gvif
+        Under a GLM family, the GVIF of the plain design (unweighted), beside ``gvif``, which
+        is weighted at the fit; None for the gaussian family and when aliased in the plain
+        design.
     gvif_interval
         bootstrap only: ``[low, high]``, percentile interval of the GVIF at
         ``uncertainty.level``; None otherwise, or when aliased.
@@ -140,6 +149,7 @@ class TermInflation(_Result, frozen=True):
     gvif_scaled: float | None = None
     above_threshold: bool = False
     aliased: bool = False
+    design_gvif: float | None = None
     gvif_interval: Sequence[float] | None = None
     gvif_scaled_interval: Sequence[float] | None = None
     share_above_threshold: float | None = None
@@ -845,6 +855,49 @@ class RepairReport(_Result, frozen=True):
     singular: bool = False
 
 
+class ModelFit(_Result, frozen=True):
+    """The generalized linear model fitted by IRLS whose weighted design was assessed.
+
+    Attributes
+    ----------
+    family
+        ``"binomial"``, ``"poisson"``, ``"gamma"`` or ``"tweedie"``.
+    link
+        The link function: ``"logit"`` (binomial) or ``"log"`` (the others).
+    var_power
+        The tweedie variance power (variance proportional to mean^v); None for other families.
+    converged
+        Whether IRLS met its criterion (an answer is only given for a converged fit).
+    iterations
+        IRLS iterations used (one weighted least-squares solve each).
+    tolerance
+        The convergence criterion: no linear predictor moved by more than ``tolerance`` times
+        (1 + the largest absolute linear predictor) in the last iteration.
+    deviance
+        Deviance at the fit (sum over rows of prior weight times unit deviance; not divided by
+        the dispersion).
+    dispersion
+        The dispersion used for the coefficients' covariance: 1 for binomial and poisson,
+        Pearson chi-square over (n - rank) for gamma and tweedie. The diagnostics do not
+        depend on it.
+    n
+        Observations used by the fit (rows with a positive prior weight), not a sum of weights.
+    n_coefficients
+        Coefficients fitted, the intercept included.
+    """
+
+    family: str = ""
+    link: str = ""
+    var_power: float | None = None
+    converged: bool = False
+    iterations: int = 0
+    tolerance: float = math.nan
+    deviance: float = math.nan
+    dispersion: float = math.nan
+    n: int = 0
+    n_coefficients: int = 0
+
+
 class Uncertainty(_Result, frozen=True):
     """How the intervals of ``variables`` and ``terms`` were made, and how stable the removal is.
 
@@ -951,6 +1004,9 @@ class Assessment(_Result, frozen=True):
         keeps max VIF, effective df and R^2 at eight k, the first and the last included) and
         the choices' original-unit coefficients, and the components' loadings, variable
         correlations, variances, original-unit and OLS coefficients and R^2 by component.
+    model
+        The generalized linear model fitted for a non-gaussian ``family``: every diagnostic
+        is then that of the design weighted at its fit. None for the gaussian family.
     uncertainty
         How the intervals, p-values and shares in ``variables`` and ``terms`` were made, and
         (bootstrap) the stability of the removal; None without ``options.uncertainty``.
@@ -975,6 +1031,7 @@ class Assessment(_Result, frozen=True):
     warnings: Sequence[Notice] = ()
     cautions: Sequence[str] = ()
     detail: str = "full"
+    model: ModelFit | None = None
     uncertainty: Uncertainty | None = None
 
 
@@ -1001,6 +1058,7 @@ RESULT_TYPES: tuple[type[msgspec.Struct], ...] = (
     RemedyRow,
     Comparison,
     RepairReport,
+    ModelFit,
     Uncertainty,
     Assessment,
 )

@@ -106,3 +106,41 @@ async def test_errors_of_the_work_reach_the_caller() -> None:
     with pytest.raises(ValueError, match="bad input"):
         await pool.run(fail)
     assert pool.in_flight == 0
+
+
+async def test_a_glm_fit_past_its_time_limit_stops_at_its_next_checkpoint() -> None:
+    # A binomial fit on a table large enough to take several IRLS iterations: the pool's
+    # time limit sets the stop flag, and the fit ends at its next checkpoint (between
+    # iterations or row blocks) with Interrupted instead of running to the end.
+    import numpy as np
+    from scipy.special import expit
+
+    from knotwork.codecs import Prepared, TableData, run
+    from knotwork.core import Interrupted
+    from knotwork_contract import AssessOptions
+
+    rng = np.random.default_rng(8)
+    x = rng.normal(size=(200_000, 20))
+    y = (rng.random(200_000) < expit(x @ rng.normal(0, 0.3, 20))).astype(float)
+    columns = {f"x{j}": x[:, j] for j in range(20)} | {"y": y}
+    prepared = Prepared(
+        data=TableData(columns=columns, categorical={}, response="y"),
+        options=AssessOptions(family="binomial"),
+    )
+    outcome: list[str] = []
+
+    def fit() -> None:
+        try:
+            run(prepared)
+            outcome.append("finished")
+        except Interrupted:
+            outcome.append("stopped")
+
+    pool = WorkPool(concurrency=1, queue=0, timeout_s=0.01)
+    with pytest.raises(ApiError) as info:
+        await pool.run(fit)
+    assert info.value.kind == "time-limit"
+    with anyio.fail_after(30):
+        while pool.in_flight:
+            await anyio.sleep(0.02)
+    assert outcome == ["stopped"]

@@ -165,7 +165,7 @@ CASES = [
         lambda: glm(_replace(SPEND, 9, -2.0), family="tweedie", var_power=1.5),
         InputError,
         "/columns/y",
-        "a tweedie response and cannot be negative; row 9 is -2",
+        "a tweedie response cannot be negative; row 9 is -2",
     ),
     (
         lambda: glm(BOUGHT, columns=cols(y=BOUGHT, w=_replace(AGE, 2, -1.0)), weights="w"),

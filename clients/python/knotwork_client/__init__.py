@@ -28,6 +28,7 @@ from ._exceptions import (
     ServiceError,
     TransportError,
 )
+from ._glm_dask import GlmSummaries, summarize_glm_dask
 from ._inputs import Correlation, Estimates, Moments, estimates, from_fitted
 from ._results import (
     Assessment,
@@ -36,6 +37,7 @@ from ._results import (
     Dependency,
     FarrarGlauber,
     FieldError,
+    ModelFit,
     ProblemDetails,
     Removal,
     RemovalStep,
@@ -67,9 +69,11 @@ __all__ = [
     "Estimates",
     "FarrarGlauber",
     "FieldError",
+    "GlmSummaries",
     "InputRejectedError",
     "KnotworkClientError",
     "MissingValuesError",
+    "ModelFit",
     "Moments",
     "ProblemDetails",
     "Removal",
@@ -97,4 +101,5 @@ __all__ = [
     "merge_summaries",
     "summarize",
     "summarize_dask",
+    "summarize_glm_dask",
 ]

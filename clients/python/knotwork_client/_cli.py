@@ -36,7 +36,7 @@ from typing import Any, TextIO
 import httpx
 from tqdm import tqdm
 
-from knotwork_contract import DETAILS
+from knotwork_contract import DETAILS, FAMILIES
 
 from ._client import Client
 from ._config import Retry
@@ -52,7 +52,9 @@ EXIT_OK, EXIT_BREACH, EXIT_USAGE, EXIT_ERROR = 0, 1, 2, 3
 DEFAULT_URL = "http://127.0.0.1:8000"
 DEFAULT_THRESHOLD = 5.0  # the service's default; a rule of thumb
 
-_TABLE_KEYS = ("response", "weights", "categorical", "columns", "missing")
+_TABLE_KEYS = ("response", "weights", "categorical", "columns", "missing", "offset", "trials")
+#: Table keys that only a fit on rows uses (never part of a local summary).
+_FIT_KEYS = ("offset", "trials")
 _MODEL_KEYS = frozenset({"name", "path", "summary_only", *_TABLE_KEYS, *OPTION_NAMES})
 
 CSV_FIELDS = (
@@ -161,6 +163,17 @@ def _parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--sections", type=_names, help="comma-separated result sections")
     p.add_argument(
+        "--family",
+        choices=FAMILIES,
+        help="gaussian (least squares, the service's default) or a GLM fitted to --response, "
+        "whose diagnostics are those of the design weighted at the fit",
+    )
+    p.add_argument(
+        "--var-power", type=float, help="tweedie variance power, strictly between 1 and 2"
+    )
+    p.add_argument("--offset", help="offset column of a GLM (for example log exposure)")
+    p.add_argument("--trials", help="binomial trials column (the response is then a proportion)")
+    p.add_argument(
         "--uncertainty",
         choices=("normal", "bootstrap"),
         help=(
@@ -197,6 +210,10 @@ def _cli_defaults(args: argparse.Namespace) -> dict[str, Any]:
         "repair": args.repair,
         "detail": args.detail,
         "sections": args.sections,
+        "family": args.family,
+        "var_power": args.var_power,
+        "offset": args.offset,
+        "trials": args.trials,
         "uncertainty": _uncertainty(args),
     }
     return {k: v for k, v in given.items() if v is not None}
@@ -283,6 +300,12 @@ def _collect(inputs: Sequence[str], cli: dict[str, Any]) -> list[Model]:
             checked = normalize_options(m.options)
         except (TypeError, ValueError) as exc:
             raise UsageError(f"model {m.name!r}: {exc}") from None
+        fitted = m.options.get("family", "gaussian") != "gaussian"
+        if m.summary_only and (fitted or any(k in m.table for k in _FIT_KEYS)):
+            raise UsageError(
+                f"model {m.name!r}: a GLM family (and its offset and trials) is fitted to the "
+                "rows, which --summary-only never sends; leave out one or the other"
+            )
         method = (checked.get("uncertainty") or {}).get("method")
         if m.summary_only and method == "bootstrap":
             raise UsageError(

@@ -28,6 +28,7 @@ from ._exceptions import (
     ServiceError,
     TransportError,
 )
+from ._glm_dask import GlmSummaries
 from ._results import Assessment, ProblemDetails
 from ._version import VERSION
 
@@ -46,7 +47,7 @@ _RETRIED_ERRORS: tuple[type[Exception], ...] = (
     httpx.RemoteProtocolError,
 )
 
-_TABLE_ARGS = ("response", "weights", "categorical", "names", "columns")
+_TABLE_ARGS = ("response", "weights", "categorical", "names", "columns", "offset", "trials")
 
 BatchResult = Assessment | ProblemDetails
 
@@ -305,15 +306,19 @@ class Client(_BaseClient):
             path to a CSV, Parquet or Arrow file), a summary (:class:`Summary`,
             :class:`Correlation`, :class:`Moments`), a fitted model's :class:`Estimates`, or
             a fitted statsmodels results object (read by :func:`from_fitted`). Large tables go
-            as Arrow IPC.
+            as Arrow IPC. A GLM fitted on a Dask dataframe (:func:`summarize_glm_dask`) goes as
+            one batch of its two summaries, and the answer is assembled as for rows.
         **options
-            For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``.
+            For rows: ``response``, ``weights``, ``categorical``, ``names``, ``columns``,
+            and under a GLM family ``offset`` and ``trials`` (column names).
             Service options: ``threshold``, ``protect``, ``intercept``, ``missing``,
             ``repair``, ``sections``, ``ridge`` (``{"grid": [...]}``), ``components``
-            (``{"rule": ..., "limit": ...}``), ``uncertainty`` (``{"method": "normal" or
-            "bootstrap", "level": ..., "replicates": ..., "seed": ...}``, an
-            :class:`UncertaintyOptions`, or a bare method; the bootstrap needs rows, not a
-            summary). ``encoding``: ``auto``, ``json`` or ``arrow``.
+            (``{"rule": ..., "limit": ...}``), ``detail``, ``family`` (``gaussian``,
+            ``binomial``, ``poisson``, ``gamma``, ``tweedie``), ``var_power`` (tweedie),
+            ``uncertainty`` (``{"method": "normal" or "bootstrap", "level": ...,
+            "replicates": ..., "seed": ...}``, an :class:`UncertaintyOptions`, or a bare
+            method; the bootstrap needs rows, not a summary). ``encoding``: ``auto``, ``json``
+            or ``arrow``.
 
         Raises
         ------
@@ -322,6 +327,8 @@ class Client(_BaseClient):
         TransportError
             The service could not be reached through every retry.
         """
+        if isinstance(data, GlmSummaries):
+            return data.combine(self.assess_batch(data.requests(options)), options)  # type: ignore[no-any-return]
         return self._assessment(self._assess_document(data, options))
 
     def _assess_document(self, data: Any, options: dict[str, Any]) -> Any:
@@ -452,6 +459,8 @@ class AsyncClient(_BaseClient):
 
     async def assess(self, data: Any, **options: Any) -> Assessment:
         """Assess one model: ``POST /v1/assess`` (see :meth:`Client.assess`)."""
+        if isinstance(data, GlmSummaries):
+            return data.combine(await self.assess_batch(data.requests(options)), options)  # type: ignore[no-any-return]
         return self._assessment(await self._assess_document(data, options))
 
     async def _assess_document(self, data: Any, options: dict[str, Any]) -> Any:

@@ -168,7 +168,17 @@ def _gather(blocks: Sequence[Block]) -> _Table:
     return _Table(numeric, categorical, rows)
 
 
-def _table_document(table: _Table, response: str | None, weights: str | None) -> dict[str, Any]:
+def _check_roles(table: _Table, roles: Mapping[str, str | None]) -> None:
+    """Each column a role names (response, weights, offset, trials) is a numeric column."""
+    for role, column in roles.items():
+        if column is not None and column not in table.numeric:
+            raise DataError(
+                f"the {role} column {column!r} is not a numeric column of the table",
+                [(column, "no such numeric column")],
+            )
+
+
+def _table_document(table: _Table, roles: Mapping[str, str | None]) -> dict[str, Any]:
     doc: dict[str, Any] = {"kind": "table", "columns": {}}
     for name, values in table.numeric.items():
         # msgspec writes NaN as null, which is how the service reads a missing value.
@@ -178,14 +188,8 @@ def _table_document(table: _Table, response: str | None, weights: str | None) ->
             name: [levels[c] if c >= 0 else None for c in codes.tolist()]
             for name, (codes, levels) in table.categorical.items()
         }
-    for role, column in (("response", response), ("weights", weights)):
-        if column is not None:
-            if column not in table.numeric:
-                raise DataError(
-                    f"the {role} column {column!r} is not a numeric column of the table",
-                    [(column, "no such numeric column")],
-                )
-            doc[role] = column
+    _check_roles(table, roles)
+    doc.update({role: column for role, column in roles.items() if column is not None})
     return doc
 
 
@@ -252,20 +256,17 @@ def input_document(
     categorical: Sequence[str] | None = None,
     names: Sequence[str] | None = None,
     columns: Sequence[str] | None = None,
+    offset: str | None = None,
+    trials: str | None = None,
 ) -> dict[str, Any]:
     """The JSON ``input`` document for ``data`` (rows as a ``table``, or a summary)."""
-    shaping = {
-        "response": response,
-        "weights": weights,
-        "categorical": categorical,
-        "names": names,
-        "columns": columns,
-    }
+    roles = {"response": response, "weights": weights, "offset": offset, "trials": trials}
+    shaping = {**roles, "categorical": categorical, "names": names, "columns": columns}
     doc = _summary_like(data)
     if doc is not None:
         _no_table_arguments(data, shaping)
         return doc
-    return _table_document(_read_table(data, categorical, columns, names), response, weights)
+    return _table_document(_read_table(data, categorical, columns, names), roles)
 
 
 def _read_table(
@@ -294,6 +295,8 @@ def encode_assess(
     categorical: Sequence[str] | None = None,
     names: Sequence[str] | None = None,
     columns: Sequence[str] | None = None,
+    offset: str | None = None,
+    trials: str | None = None,
     encoding: str = "auto",
     arrow_cells: int,
 ) -> Payload:
@@ -305,17 +308,11 @@ def encode_assess(
     if encoding not in ("auto", "json", "arrow"):
         raise ValueError(f"encoding must be 'auto', 'json' or 'arrow', got {encoding!r}")
     opts = normalize_options(options)
+    roles = {"response": response, "weights": weights, "offset": offset, "trials": trials}
     summary_doc = _summary_like(data)
     if summary_doc is not None:
         _no_table_arguments(
-            data,
-            {
-                "response": response,
-                "weights": weights,
-                "categorical": categorical,
-                "names": names,
-                "columns": columns,
-            },
+            data, {**roles, "categorical": categorical, "names": names, "columns": columns}
         )
         body = _encoder.encode({"input": summary_doc, "options": opts})
         return Payload(body, JSON, None, summary_doc["kind"])
@@ -324,15 +321,10 @@ def encode_assess(
         encoding == "auto" and table.cells >= arrow_cells and _has_pyarrow()
     )
     if use_arrow:
-        for role, name in (("response", response), ("weights", weights)):
-            if name is not None and name not in table.numeric:
-                raise DataError(
-                    f"the {role} column {name!r} is not a numeric column of the table",
-                    [(name, "no such numeric column")],
-                )
-        query = options_query(opts, {"response": response, "weights": weights})
+        _check_roles(table, roles)
+        query = options_query(opts, roles)
         return Payload(_arrow_stream(table), ARROW_STREAM, query, "arrow")
-    doc = _table_document(table, response, weights)
+    doc = _table_document(table, roles)
     return Payload(_encoder.encode({"input": doc, "options": opts}), JSON, None, "table")
 
 

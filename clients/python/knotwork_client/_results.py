@@ -25,6 +25,7 @@ from knotwork_contract import (
     Conditioning,
     Dependency,
     FarrarGlauber,
+    ModelFit,
     Problem,
     ProblemDocument,
     Removal,
@@ -48,6 +49,7 @@ __all__ = [
     "Dependency",
     "FarrarGlauber",
     "FieldError",
+    "ModelFit",
     "ProblemDetails",
     "Removal",
     "RemovalStep",
@@ -89,7 +91,9 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
     def to_frame(self) -> Any:
         """Per-variable table as a DataFrame indexed by name (``vif`` NaN when aliased).
 
-        With ``uncertainty`` in the answer it also has ``vif_low`` and ``vif_high`` (the ends
+        Under a GLM family (``model`` is set) a column ``design_vif`` holds the plain
+        design's VIF beside ``vif``, the VIF weighted at the fit. With ``uncertainty`` in the
+        answer it also has ``vif_low`` and ``vif_high`` (the ends
         of ``vif_interval``), ``threshold_p_value`` (normal), ``share_above_threshold`` and
         ``share_dropped`` (bootstrap); a value the method does not give is NaN.
         """
@@ -103,6 +107,8 @@ class Assessment(knotwork_contract.Assessment, frozen=True):
             "above_threshold": [v.above_threshold for v in vs],
             "aliased": [v.aliased for v in vs],
         }
+        if self.model is not None:
+            columns["design_vif"] = [_f(v.design_vif) for v in vs]
         if self.uncertainty is not None:
             columns["vif_low"] = [_end(v.vif_interval, 0) for v in vs]
             columns["vif_high"] = [_end(v.vif_interval, 1) for v in vs]

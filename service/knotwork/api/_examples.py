@@ -15,6 +15,7 @@ from typing import Any
 __all__ = [
     "CORRELATION_EXAMPLE",
     "ESTIMATES_EXAMPLE",
+    "GLM_EXAMPLE",
     "MOMENTS_EXAMPLE",
     "PARTS_EXAMPLE",
     "TABLE_COLUMNS",
@@ -57,6 +58,22 @@ UNCERTAINTY_EXAMPLE: dict[str, Any] = {
         "sections": ["variables", "terms", "removal"],
         "uncertainty": {"method": "bootstrap", "replicates": 500, "seed": 1},
     },
+}
+
+#: Codling moths caught in each plot's trap over a week (generated: poisson, log mean rising
+#: with rainfall and falling with sun hours), for the GLM example.
+MOTHS_CAUGHT = [2.0, 1.0, 2.0, 2.0, 4.0, 2.0, 0.0, 2.0, 2.0, 3.0, 1.0, 2.0, 3.0, 2.0, 1.0, 1.0]
+
+GLM_EXAMPLE: dict[str, Any] = {
+    "input": {
+        "kind": "table",
+        "columns": {
+            **{k: v for k, v in TABLE_COLUMNS.items() if k != "yield_kg"},
+            "moths_caught": MOTHS_CAUGHT,
+        },
+        "response": "moths_caught",
+    },
+    "options": {"family": "poisson", "sections": ["variables", "conditioning", "removal"]},
 }
 
 CORRELATION_EXAMPLE: dict[str, Any] = {

@@ -41,6 +41,7 @@ from knotwork_contract import (
 from ._examples import (
     CORRELATION_EXAMPLE,
     ESTIMATES_EXAMPLE,
+    GLM_EXAMPLE,
     MOMENTS_EXAMPLE,
     PARTS_EXAMPLE,
     TABLE_EXAMPLE,
@@ -130,6 +131,7 @@ class AssessOperation(Operation):
                         correlation=CORRELATION_EXAMPLE,
                         moments=MOMENTS_EXAMPLE,
                         moments_in_parts=PARTS_EXAMPLE,
+                        table_poisson_model=GLM_EXAMPLE,
                         estimates=ESTIMATES_EXAMPLE,
                         table_with_intervals=UNCERTAINTY_EXAMPLE,
                     ),

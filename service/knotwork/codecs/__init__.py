@@ -24,7 +24,7 @@ from ._prepared import (
     Prepared,
     TableData,
 )
-from ._query import options_from_query
+from ._query import options_from_query, query_options
 
 __all__ = [
     "ARROW_FILE",
@@ -47,6 +47,7 @@ __all__ = [
     "decode_batch",
     "decode_table_body",
     "options_from_query",
+    "query_options",
     "read_table",
     "run",
     "table_data",

@@ -20,7 +20,7 @@ from knotwork_contract import Problem, join
 
 from ._errors import MalformedBody, TooLarge, UnusableInput
 from ._prepared import Limits, Origin, Prepared, TableData
-from ._query import options_from_query
+from ._query import query_options
 
 __all__ = ["ARROW_FILE", "ARROW_STREAM", "PARQUET", "decode_table_body", "read_table"]
 
@@ -183,7 +183,13 @@ def _is_text(kind: pa.DataType) -> bool:
 
 
 def table_data(
-    table: pa.Table, limits: Limits, response: str | None, weights: str | None
+    table: pa.Table,
+    limits: Limits,
+    response: str | None,
+    weights: str | None,
+    *,
+    offset: str | None = None,
+    trials: str | None = None,
 ) -> TableData:
     """Split an Arrow table into numeric and categorical columns, enforcing the limits.
 
@@ -230,7 +236,14 @@ def table_data(
                 f"columns of type {kind} are not supported; send numbers (integer, float, "
                 "decimal or boolean) or labels (string or dictionary of strings)",
             )
-    return TableData(columns=columns, categorical=categorical, response=response, weights=weights)
+    return TableData(
+        columns=columns,
+        categorical=categorical,
+        response=response,
+        weights=weights,
+        offset=offset,
+        trials=trials,
+    )
 
 
 def decode_table_body(
@@ -243,7 +256,14 @@ def decode_table_body(
     CodecError
         MalformedBody, InvalidRequest (a query parameter), TooLarge or UnusableInput.
     """
-    options, response, weights = options_from_query(query)
+    options, columns = query_options(query)
     table = read_table(body, media_type, limits)
-    data = table_data(table, limits, response, weights)
+    data = table_data(
+        table,
+        limits,
+        columns.get("response"),
+        columns.get("weights"),
+        offset=columns.get("offset"),
+        trials=columns.get("trials"),
+    )
     return Prepared(data=data, options=options, origin=Origin(query=True))

@@ -10,12 +10,15 @@ from knotwork.core import (
     Options,
     Summary,
     assess,
+    assess_glm,
+    check_model,
     design_from_table,
     from_correlation,
     from_estimates,
     from_moments,
     from_table,
     merge_moments,
+    summarize_glm,
     summary_detail,
 )
 from knotwork_contract import Assessment, AssessOptions, Problem
@@ -36,6 +39,8 @@ def core_options(options: AssessOptions) -> Options:
         sections=tuple(options.sections) if options.sections is not None else None,
         ridge_grid=tuple(ridge.grid) if ridge is not None and ridge.grid is not None else None,
         detail=options.detail,
+        family=options.family,
+        var_power=options.var_power,
     )
     components = options.components
     if components is not None:
@@ -118,6 +123,38 @@ def summarize(prepared: Prepared) -> Summary:
     )
 
 
+def _compute(prepared: Prepared) -> Assessment:
+    """The model rules first, then a GLM fit for a table under a non-gaussian family, or the
+    summary of the input as it is."""
+    options = core_options(prepared.options)
+    data = prepared.data
+    table = data if isinstance(data, TableData) else None
+    check_model(
+        options,
+        input_kind=prepared.kind,
+        response=None if table is None else table.response,
+        offset=None if table is None else table.offset,
+        trials=None if table is None else table.trials,
+    )
+    if table is None or options.family == "gaussian":
+        summary, rows = summarize_with_rows(prepared)
+        return assess(summary, options, rows)
+    assert table.response is not None  # check_model insists on it
+    glm = summarize_glm(
+        table.columns,
+        response=table.response,
+        family=options.family,
+        categorical=table.categorical or None,
+        var_power=options.var_power,
+        weights=table.weights,
+        offset=table.offset,
+        trials=table.trials,
+        intercept=options.intercept,
+        missing=prepared.options.missing,
+    )
+    return assess_glm(glm, options)
+
+
 def run(prepared: Prepared) -> Assessment:
     """Summarize and assess: the whole computation for one request, at the detail it asks.
 
@@ -128,8 +165,7 @@ def run(prepared: Prepared) -> Assessment:
         pointers translated into the request the client sent (``prepared.origin``).
     """
     try:
-        summary, rows = summarize_with_rows(prepared)
-        result = assess(summary, core_options(prepared.options), rows)
+        result = _compute(prepared)
     except KnotworkError as exc:
         where = prepared.origin
         problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]

@@ -229,7 +229,12 @@ def _table(inp: TableInput, limits: Limits, at: str) -> TableData:
         _too_many_cells(cells, limits, at + "/categorical")
         categorical[name] = labels
     return TableData(
-        columns=columns, categorical=categorical, response=inp.response, weights=inp.weights
+        columns=columns,
+        categorical=categorical,
+        response=inp.response,
+        weights=inp.weights,
+        offset=inp.offset,
+        trials=inp.trials,
     )
 
 

@@ -42,6 +42,8 @@ class TableData:
     categorical: dict[str, list[str | None]]
     response: str | None = None
     weights: str | None = None
+    offset: str | None = None
+    trials: str | None = None
 
 
 @dataclass(frozen=True, slots=True, eq=False)

@@ -24,7 +24,7 @@ from knotwork_contract import (
 from ._errors import InvalidRequest
 from ._prepared import Origin
 
-__all__ = ["options_from_query"]
+__all__ = ["options_from_query", "query_options"]
 
 
 def _fail(parameter: str, reason: str) -> InvalidRequest:
@@ -34,6 +34,19 @@ def _fail(parameter: str, reason: str) -> InvalidRequest:
 
 def options_from_query(query: str | bytes) -> tuple[AssessOptions, str | None, str | None]:
     """Parse a query string into options and the ``response`` and ``weights`` column names.
+
+    Raises
+    ------
+    InvalidRequest
+        As :func:`query_options`.
+    """
+    options, columns = query_options(query)
+    return options, columns.get("response"), columns.get("weights")
+
+
+def query_options(query: str | bytes) -> tuple[AssessOptions, dict[str, str]]:
+    """Parse a query string into options and the table's column names by field (``response``,
+    ``weights``, ``offset``, ``trials``: every column-name field of the table input).
 
     Raises
     ------
@@ -60,4 +73,4 @@ def options_from_query(query: str | bytes) -> tuple[AssessOptions, str | None, s
         raise InvalidRequest(
             f"query parameter {parameter}: {reason}", [Problem(where, reason)]
         ) from None
-    return options, columns.get("response"), columns.get("weights")
+    return options, columns

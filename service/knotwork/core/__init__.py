@@ -9,12 +9,13 @@ are the shared contract's: import them from :mod:`knotwork_contract`.
 
 from knotwork_contract import SECTIONS
 
-from ._assess import Options, assess, check_options
+from ._assess import GLM_OMITTED, Options, assess, assess_glm, check_model, check_options
 from ._components import principal_components
 from ._conditioning import condition_diagnostics
 from ._dependencies import DependencyReport, Spectrum, find_dependencies
 from ._detail import summary_detail
 from ._errors import (
+    FitError,
     InputError,
     KnotworkError,
     MatrixError,
@@ -24,6 +25,7 @@ from ._errors import (
     TooFewDataError,
 )
 from ._estimates import from_estimates
+from ._glm import FAMILIES, GlmFit, GlmSummaries, summarize_glm
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import Interrupted, checkpoint, stop_when
 from ._matrices import from_correlation, from_moments, merge_moments
@@ -42,12 +44,17 @@ from ._validation import MISSING_POLICIES, REPAIR_POLICIES
 __all__ = [
     "CAUTIONS",
     "CODES",
+    "FAMILIES",
+    "GLM_OMITTED",
     "INTERCEPT_NAME",
     "MISSING_POLICIES",
     "REPAIR_POLICIES",
     "SECTIONS",
     "DependencyReport",
     "DesignRows",
+    "FitError",
+    "GlmFit",
+    "GlmSummaries",
     "InputError",
     "Interrupted",
     "KnotworkError",
@@ -63,7 +70,9 @@ __all__ = [
     "Term",
     "TooFewDataError",
     "assess",
+    "assess_glm",
     "bootstrap_intervals",
+    "check_model",
     "check_options",
     "checkpoint",
     "collinearity_tests",
@@ -87,6 +96,7 @@ __all__ = [
     "removal_sequence",
     "ridge_analysis",
     "stop_when",
+    "summarize_glm",
     "summary_detail",
     "variance_inflation",
 ]

@@ -4,14 +4,16 @@ from __future__ import annotations
 
 import math
 from collections.abc import Collection
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import msgspec
 import numpy as np
 
 from knotwork_contract import (
+    SECTIONS,
     Assessment,
     Conditioning,
+    ModelFit,
     Notice,
     OptionsError,
     TermInflation,
@@ -30,7 +32,8 @@ from ._dependencies import (
     clearly_regular_inverse,
     find_dependencies,
 )
-from ._errors import OptionError, Problem
+from ._errors import InputError, OptionError, Problem
+from ._glm import TOL, GlmSummaries
 from ._inflation import generalized_inflation, variance_inflation
 from ._interrupt import checkpoint
 from ._notices import CAUTIONS, notice
@@ -80,6 +83,10 @@ class Options:
         A tangle is a component with condition index above ``index_threshold`` and two or more
         variance-decomposition proportions above ``proportion_threshold`` (common practice
         after Belsley, Kuh & Welsch: 30 and 0.5).
+    family, var_power
+        The model the diagnostics are for: ``"gaussian"`` (least squares; :func:`assess`) or a
+        GLM family fitted to a table (:func:`assess_glm`, on :func:`summarize_glm`'s
+        summaries); ``var_power`` is the tweedie variance power, required with tweedie only.
     detail
         ``"full"`` (default) builds every table; ``"summary"`` leaves out the p x p tables
         that :func:`summary_detail` drops (proportions, partial-correlation tables, component
@@ -100,6 +107,8 @@ class Options:
     components_limit: float | None = None
     index_threshold: float = 30.0
     proportion_threshold: float = 0.5
+    family: str = "gaussian"
+    var_power: float | None = None
     detail: str = "full"
     uncertainty: UncertaintyOptions | None = None
 
@@ -124,9 +133,92 @@ def _wire_document(options: Options) -> dict[str, object]:
         doc["sections"] = list(options.sections)
     if options.ridge_grid is not None:
         doc["ridge"] = {"grid": list(options.ridge_grid)}
+    doc["family"] = options.family
+    if options.var_power is not None:
+        doc["var_power"] = options.var_power
     if options.uncertainty is not None:
         doc["uncertainty"] = msgspec.structs.asdict(options.uncertainty)
     return doc
+
+
+def _family_problems(options: Options) -> list[Problem]:
+    """The rule of two options: var_power goes with the tweedie family, and only with it."""
+    if options.family == "tweedie" and options.var_power is None:
+        return [
+            Problem(
+                "/var_power",
+                "the tweedie family needs var_power, strictly between 1 and 2 (1 is poisson-like, "
+                "2 gamma-like); there is no default",
+            )
+        ]
+    if options.family != "tweedie" and options.var_power is not None:
+        return [
+            Problem(
+                "/var_power",
+                f"var_power applies to the tweedie family only, not {options.family!r}; leave it "
+                "out or set family to 'tweedie'",
+            )
+        ]
+    return []
+
+
+def check_model(
+    options: Options,
+    *,
+    input_kind: str,
+    response: str | None = None,
+    offset: str | None = None,
+    trials: str | None = None,
+) -> None:
+    """The rules that tie the model family to the input, checked before anything is computed.
+
+    A non-gaussian family fits a model to the rows of a table, so it needs a table and a
+    response column; ``trials`` belong to the binomial family and ``offset`` to a fitted
+    (non-gaussian) family. The gaussian family's diagnostics are those of the design itself,
+    which neither an offset nor trials change, so they are refused there rather than ignored.
+
+    Raises
+    ------
+    OptionError
+        ``/family`` or ``/var_power`` (the options), or var_power without tweedie.
+    InputError
+        ``/response``, ``/offset`` or ``/trials`` (fields of the input).
+    """
+    family_faults = _family_problems(options)
+    if family_faults:
+        raise OptionError(family_faults[0].reason, family_faults)
+    family = options.family
+    if family != "gaussian" and input_kind != "table":
+        raise OptionError.at(
+            "/family",
+            f"family {family!r} fits a model to the rows of a table; a {input_kind} input has no "
+            "rows, so only family 'gaussian' applies to it",
+        )
+    if trials is not None and family != "binomial":
+        raise InputError.at(
+            "/trials",
+            f"trials apply to the binomial family only, not {family!r}; leave trials out or set "
+            "family to 'binomial'",
+        )
+    if offset is not None and family == "gaussian":
+        raise InputError.at(
+            "/offset",
+            "an offset applies to a fitted model (family binomial, poisson, gamma or tweedie); "
+            "the gaussian family's diagnostics do not depend on it, so leave it out",
+        )
+    if family != "gaussian" and response is None:
+        raise InputError.at(
+            "/response",
+            f"family {family!r} fits a model to a response; name the response column",
+        )
+    unc = options.uncertainty
+    if family != "gaussian" and unc is not None and unc.method == "bootstrap":
+        raise OptionError.at(
+            "/uncertainty/method",
+            f"the bootstrap is not offered for family {family!r} (each replicate would need its "
+            "own fit); use method 'normal', whose intervals are those of the design weighted "
+            "at the fit",
+        )
 
 
 def check_options(options: Options, summary: Summary, rows: DesignRows | None = None) -> None:
@@ -142,7 +234,7 @@ def check_options(options: Options, summary: Summary, rows: DesignRows | None = 
     except OptionsError as exc:
         where = exc.pointer.removeprefix("/options")
         raise OptionError(exc.reason, [Problem(where, exc.reason)]) from None
-    problems: list[Problem] = []
+    problems: list[Problem] = list(_family_problems(options))
     known = set(summary.names) | {term.name for term in summary.terms}
     for i, name in enumerate(options.protect):
         if name not in known:
@@ -622,3 +714,99 @@ def _conditioning(
             )
         )
     return result
+
+
+#: Sections left out under a GLM family: their regressions are least squares on the response.
+GLM_OMITTED: tuple[str, ...] = ("ridge", "components", "comparison")
+
+
+def assess_glm(glm: GlmSummaries, options: Options | None = None) -> Assessment:
+    """Every diagnostic of a fitted GLM, on its design weighted at the fit.
+
+    Parameters
+    ----------
+    glm
+        The fit and its two summaries, from :func:`~knotwork.core._glm.summarize_glm`.
+    options
+        As for :func:`assess`; ``family`` and ``var_power`` should be those of the fit.
+
+    Returns
+    -------
+    Assessment
+        :func:`assess` of the weighted summary (variables, terms, conditioning, tests,
+        dependencies, removal), with ``design_vif`` and ``design_gvif`` from the plain design
+        beside the weighted values, the response's name, and the ``model`` record. Ridge,
+        components and the comparison are None with the warning ``glm_remedies_omitted``
+        when they were asked for.
+
+    Notes
+    -----
+    On the weighted summary, :math:`\\mathrm{VIF}_j = [R_w^{-1}]_{jj}` with :math:`R_w` the
+    correlation matrix of :math:`W^{1/2} X_c` (working weights at the fit, weighted centring);
+    GVIF by the determinant formula on :math:`R_w`; conditioning on the weighted, scaled design
+    with the constant column (Lesaffre & Marx 1993; Weissfeld & Sereika 1991); the removal
+    sequence on :math:`R_w`. The weights are held at the full model's fit: the removal's later
+    VIFs are those of the reduced design under the same weights, not of refitted models.
+
+    Ridge, principal-component regression and the comparison of remedies are least-squares
+    regressions of the response; a GLM's counterparts (penalized likelihood, refits) are not
+    computed here, so those sections are left out rather than given under a GLM's name.
+
+    Verification: the weighted VIFs equal Fox & Monette's VIFs of statsmodels' GLM
+    ``cov_params()`` (tests/reference/test_glm_reference.py, tests/api/test_api_glm.py).
+
+    Implementation: :func:`assess` twice, once on the weighted summary with the requested
+    sections, once on the plain design for variables and terms only.
+    """
+    options = options or Options()
+    omitted = [s for s in GLM_OMITTED if options.wants(s)]
+    # The contract wants at least one section; variables are always computed.
+    kept = tuple(s for s in SECTIONS if options.wants(s) and s not in GLM_OMITTED) or ("variables",)
+    weighted = assess(glm.weighted, replace(options, sections=kept))
+    design = assess(
+        glm.design,
+        Options(
+            threshold=options.threshold,
+            intercept=options.intercept,
+            sections=("variables", "terms"),
+        ),
+    )
+    design_vifs = {v.name: v.vif for v in design.variables}
+    design_gvifs = {t.name: t.gvif for t in design.terms}
+    variables = tuple(
+        msgspec.structs.replace(v, design_vif=design_vifs.get(v.name)) for v in weighted.variables
+    )
+    terms = tuple(
+        msgspec.structs.replace(t, design_gvif=design_gvifs.get(t.name)) for t in weighted.terms
+    )
+    warnings = list(weighted.warnings)
+    if omitted:
+        warnings.append(
+            notice(
+                "glm_remedies_omitted",
+                f"{', '.join(omitted)} left out: they are least-squares regressions of the "
+                f"response, not remedies for a {glm.fit.family} model; the removal sequence "
+                "(on the weighted design) is given",
+            )
+        )
+    fit = glm.fit
+    model = ModelFit(
+        family=fit.family,
+        link=fit.link,
+        var_power=fit.var_power,
+        converged=fit.converged,
+        iterations=fit.iterations,
+        tolerance=TOL,
+        deviance=fit.deviance,
+        dispersion=fit.dispersion,
+        n=fit.n,
+        n_coefficients=fit.n_coefficients,
+    )
+    return msgspec.structs.replace(
+        weighted,
+        response=glm.design.response,
+        variables=variables,
+        terms=terms,
+        warnings=tuple(dict.fromkeys(warnings)),
+        model=model,
+    )

@@ -15,9 +15,15 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.linalg
-from scipy.special import expit, xlogy
 
-from knotwork_contract import comoments, correlation_from_comoments
+from knotwork_contract import (
+    GLM_LINKS,
+    IRLS_MAX_ITER,
+    IRLS_TOLERANCE,
+    GlmFamily,
+    comoments,
+    correlation_from_comoments,
+)
 from knotwork_contract import escape as esc
 
 from ._errors import (
@@ -34,24 +40,19 @@ from ._rows import column_array, from_table
 from ._summary import INTERCEPT_NAME, Summary, Term
 from ._validation import check_terms, common_length
 
-#: The families, each with its link (the canonical one, or log for gamma and tweedie).
+#: The families, each with its link (the canonical one, or log for gamma and tweedie); the
+#: arithmetic of each family is the contract's (:class:`knotwork_contract.GlmFamily`).
 FAMILIES = ("gaussian", "binomial", "poisson", "gamma", "tweedie")
-LINKS: Mapping[str, str] = {
-    "gaussian": "identity",
-    "binomial": "logit",
-    "poisson": "log",
-    "gamma": "log",
-    "tweedie": "log",
-}
+LINKS: Mapping[str, str] = GLM_LINKS
 GLM_MISSING_POLICIES = ("reject", "drop_rows")
 
 #: Default iteration limit (statsmodels' default too).
-MAX_ITER = 100
+MAX_ITER = IRLS_MAX_ITER
 #: Default convergence tolerance: the fit has converged when no linear predictor moved by more
 #: than ``TOL * (1 + max |eta|)`` in the last iteration. The working weights are functions of
 #: eta, and for the logit and log links d(log w)/d(eta) is at most 1 in size, so this bounds
 #: the relative change of every weight in the last step (see :func:`fit_glm`).
-TOL = 1e-9
+TOL = IRLS_TOLERANCE
 
 #: Row blocks of the weighted Gram product are about this many bytes (as in the summaries).
 _BLOCK_BYTES = 4 << 20
@@ -61,9 +62,6 @@ _BLOCK_BYTES = 4 << 20
 _RANK_RTOL = 1e-10
 #: Step halvings tried when a step increases the deviance.
 _MAX_HALVINGS = 30
-#: A fitted probability within this distance of 0 or 1 (or a fitted mean this small against
-#: the mean response, for a zero count) counts as having reached the boundary.
-_BOUNDARY = 1e-10
 #: Iterations in a row with fitted values at the boundary, moving further out, that mark a
 #: coefficient growing without bound (separation); a converging fit settles well before.
 _DIVERGING_STREAK = 8
@@ -159,106 +157,7 @@ class GlmSummaries:
 # Families
 
 
-@dataclass(frozen=True, slots=True)
-class _Family:
-    """Variance, link and deviance of one family; ``a`` is prior weight times trials."""
-
-    name: str
-    power: float  # variance power: 0 gaussian, 1 poisson, 2 gamma, v tweedie (binomial: unused)
-
-    def start(self, y: np.ndarray, a: np.ndarray) -> np.ndarray:
-        """Starting linear predictor (not in the design's column space; IRLS projects it)."""
-        if self.name == "gaussian":
-            return y.copy()
-        if self.name == "binomial":
-            mu = (a * y + 0.5) / (a + 1.0)
-            logit: np.ndarray = np.log(mu / (1.0 - mu))
-            return logit
-        mean = float(np.dot(a, y) / np.sum(a))
-        start: np.ndarray = np.log((y + mean) / 2.0)
-        return start
-
-    def mean(self, eta: np.ndarray) -> np.ndarray:
-        if self.name == "gaussian":
-            return eta
-        if self.name == "binomial":
-            fitted: np.ndarray = expit(eta)
-            return fitted
-        exp: np.ndarray = np.exp(eta)
-        return exp
-
-    def working(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> tuple[np.ndarray, ...]:
-        """Working weights w and score terms s = a (y - mu) mu'(eta) / V(mu), both at eta.
-
-        Neither divides by a small quantity, so both stay finite as fitted values approach the
-        boundary; the working response is eta + s / w.
-        """
-        with np.errstate(all="ignore"):
-            if self.name == "gaussian":
-                return a.copy(), a * (y - eta)
-            if self.name == "binomial":
-                p, q = expit(eta), expit(-eta)
-                return a * (p * q), a * (y * q - (1.0 - y) * p)
-            if self.name == "poisson":
-                mu = np.exp(eta)
-                return a * mu, a * (y - mu)
-            if self.name == "gamma":
-                return a.copy(), a * (y * np.exp(-eta) - 1.0)
-            v = self.power
-            mu1 = np.exp((1.0 - v) * eta)
-            mu2 = np.exp((2.0 - v) * eta)
-            return a * mu2, a * (y * mu1 - mu2)
-
-    def deviance(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> float:
-        """Sum of a_i times the unit deviance at eta (inf or NaN when eta is out of range)."""
-        with np.errstate(all="ignore"):
-            if self.name == "gaussian":
-                d = (y - eta) ** 2
-            elif self.name == "binomial":
-                d = 2.0 * (
-                    xlogy(y, y)
-                    + xlogy(1.0 - y, 1.0 - y)
-                    + y * np.logaddexp(0.0, -eta)
-                    + (1.0 - y) * np.logaddexp(0.0, eta)
-                )
-            elif self.name == "poisson":
-                d = 2.0 * (xlogy(y, y) - y * eta - y + np.exp(eta))
-            elif self.name == "gamma":
-                ratio = y * np.exp(-eta)
-                d = 2.0 * (-np.log(ratio) + ratio - 1.0)
-            else:
-                v = self.power
-                d = 2.0 * (
-                    y ** (2.0 - v) / ((1.0 - v) * (2.0 - v))
-                    - y * np.exp((1.0 - v) * eta) / (1.0 - v)
-                    + np.exp((2.0 - v) * eta) / (2.0 - v)
-                )
-            return float(np.dot(a, d))
-
-    def pearson(self, eta: np.ndarray, y: np.ndarray, a: np.ndarray) -> float:
-        """Pearson chi-square: sum of a_i (y_i - mu_i)^2 / V(mu_i)."""
-        mu = self.mean(eta)
-        if self.name == "gaussian":
-            var = np.ones_like(mu)
-        elif self.name == "binomial":
-            var = expit(eta) * expit(-eta)
-        else:
-            var = mu**self.power
-        return float(np.dot(a, (y - mu) ** 2 / var))
-
-    def at_boundary(self, eta: np.ndarray, y: np.ndarray) -> np.ndarray:
-        """Rows whose fitted value has reached the boundary of its range: a probability
-        within ``_BOUNDARY`` of 0 or 1, or a fitted mean of a zero count below ``_BOUNDARY``
-        times the mean response."""
-        if self.name == "binomial":
-            return np.abs(eta) > -math.log(_BOUNDARY)  # type: ignore[no-any-return]
-        if self.name in ("poisson", "tweedie"):
-            scale = float(np.mean(y))
-            return (y == 0) & (eta < math.log(_BOUNDARY * scale))  # type: ignore[no-any-return]
-        return np.zeros(eta.shape, dtype=bool)
-
-
-def _family(family: object, var_power: object) -> _Family:
+def _family(family: object, var_power: object) -> GlmFamily:
     if family not in FAMILIES:
         raise OptionError.at(
             "/family", f"must be one of {', '.join(repr(f) for f in FAMILIES)}; got {family!r}"
@@ -273,13 +172,13 @@ def _family(family: object, var_power: object) -> _Family:
             raise OptionError.at(
                 "/var_power", f"var_power must lie strictly between 1 and 2; got {var_power!r}"
             )
-        return _Family("tweedie", float(var_power))  # type: ignore[arg-type]
+        return GlmFamily("tweedie", float(var_power))  # type: ignore[arg-type]
     if var_power is not None:
         raise OptionError.at(
             "/var_power", f"var_power applies to the tweedie family only, not {family!r}"
         )
     power = {"gaussian": 0.0, "binomial": 1.0, "poisson": 1.0, "gamma": 2.0}[str(family)]
-    return _Family(str(family), power)
+    return GlmFamily(str(family), power)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -309,7 +208,11 @@ def _first(bad: np.ndarray, values: np.ndarray, rows: np.ndarray) -> tuple[int, 
 
 
 def _check_response(
-    fam: _Family, y: np.ndarray, trials: np.ndarray | None, ptr: Mapping[str, str], rows: np.ndarray
+    fam: GlmFamily,
+    y: np.ndarray,
+    trials: np.ndarray | None,
+    ptr: Mapping[str, str],
+    rows: np.ndarray,
 ) -> None:
     """Values the family cannot take, then responses with no finite estimate at all."""
     at = ptr["response"]
@@ -349,11 +252,11 @@ def _check_response(
         if bad.any():
             row, v = _first(bad, y, rows)
             what = (
-                "a poisson response counts events"
+                "a poisson response counts events and"
                 if fam.name == "poisson"
-                else ("a tweedie response")
+                else "a tweedie response"
             )
-            raise InputError.at(at, f"{what} and cannot be negative; row {row} is {v:g}")
+            raise InputError.at(at, f"{what} cannot be negative; row {row} is {v:g}")
         if (y == 0).all():
             raise FitError.at(
                 at,
@@ -368,7 +271,7 @@ def _check_response(
 
 
 def _separating_column(
-    fam: _Family, x: np.ndarray, y: np.ndarray, intercept: bool, names: Sequence[str]
+    fam: GlmFamily, x: np.ndarray, y: np.ndarray, intercept: bool, names: Sequence[str]
 ) -> tuple[int, str] | None:
     """A single column whose maximum-likelihood coefficient is infinite, with the reason.
 
@@ -455,7 +358,7 @@ class _State:
 
 
 def _irls(
-    fam: _Family,
+    fam: GlmFamily,
     x: np.ndarray,
     y: np.ndarray,
     a: np.ndarray,
@@ -475,14 +378,19 @@ def _irls(
     for it in range(1, max_iter + 1):
         checkpoint()
         w, s = fam.working(eta, y, a)
-        gram = _weighted_gram(x, w)
+        with np.errstate(all="ignore"):
+            gram = _weighted_gram(x, w)
+            # The first step regresses the working response (from fitted values, not
+            # coefficients); later steps solve for the change.
+            rhs = x.T @ (w * (eta - offset) + s) if it == 1 else x.T @ s
+        if not (np.isfinite(gram).all() and np.isfinite(rhs).all()):
+            return state, "overflow"  # values too large for double precision
         if it == 1:
-            # First step from fitted values, not coefficients: regress the working response.
-            target, rank = _solve(gram, x.T @ (w * (eta - offset) + s))
+            target, rank = _solve(gram, rhs)
             delta = target - coef
             d_eta = x @ target + offset - eta
         else:
-            delta, rank = _solve(gram, x.T @ s)
+            delta, rank = _solve(gram, rhs)
             d_eta = x @ delta
         size = float(np.max(np.abs(d_eta)))
         limit = tol * (1.0 + float(np.max(np.abs(eta + d_eta))))
@@ -523,6 +431,29 @@ def _diverging_columns(
     if not size.size or size.max() <= 0:
         return []
     return [names[int(j)] for j in np.flatnonzero(size >= 0.1 * size.max())]
+
+
+def _largest(
+    x: np.ndarray,
+    offset: np.ndarray,
+    weights: np.ndarray,
+    trials: np.ndarray | None,
+    col_ptrs: Sequence[str],
+    ptr: Mapping[str, str],
+) -> str:
+    """The pointer of the input holding the value farthest from 1 in magnitude (on a log
+    scale): the likeliest cause of an overflow."""
+
+    def spread(v: np.ndarray) -> float:
+        with np.errstate(all="ignore"):
+            mags = np.abs(np.log10(np.abs(v[v != 0]))) if np.any(v != 0) else np.zeros(1)
+        return float(np.max(mags, initial=0.0))
+
+    candidates = [(spread(x[:, j]), col_ptrs[j]) for j in range(x.shape[1])]
+    candidates += [(spread(offset), ptr["offset"]), (spread(weights), ptr["weights"])]
+    if trials is not None:
+        candidates.append((spread(trials), ptr["trials"]))
+    return max(candidates, key=lambda c: c[0])[1]
 
 
 def fit_glm(
@@ -738,7 +669,10 @@ def fit_glm(
     if intercept:
         xi[:, 0] = 1.0
     np.subtract(xs, shift, out=xi[:, int(intercept) :])
-    state, outcome = _irls(fam, xi, ys, a, offs, max_iter, tol)
+    # Overflow and division by zero are found by the checks on what they produce (a gram or
+    # deviance that is not finite), so numpy's floating-point warnings are not wanted here.
+    with np.errstate(all="ignore"):
+        state, outcome = _irls(fam, xi, ys, a, offs, max_iter, tol)
 
     if outcome != "converged":
         edge = fam.at_boundary(state.eta, ys)
@@ -752,6 +686,12 @@ def fit_glm(
                 "combination of predictors separates them, so coefficients grow without bound "
                 + (f"(those of {', '.join(repr(c) for c in grown)}) " if grown else "")
                 + "and no finite estimate exists; drop or combine those predictors",
+            )
+        if outcome == "overflow":
+            raise FitError.at(
+                _largest(xs, offs, pws, ms, col_ptrs, ptr),
+                "the fit overflowed double precision: values this large (or small) cannot be "
+                "fitted as given; rescale the column (for example to other units)",
             )
         if outcome == "stalled":
             raise FitError.at(
@@ -769,7 +709,16 @@ def fit_glm(
     if intercept:
         coef[0] -= float(np.dot(shift, coef[1:]))
     w, s = fam.working(state.eta, ys, a)
-    z = state.eta - offs + s / w
+    total = float(np.sum(w))
+    if not (math.isfinite(total) and total > 0 and np.isfinite(w).all()):
+        raise FitError.at(
+            _largest(xs, offs, pws, ms, col_ptrs, ptr),
+            "the working weights at the fit are all 0 or not finite (fitted values at the "
+            "boundary of their range): no information is left to assess; rescale the column "
+            "or check the offset",
+        )
+    with np.errstate(all="ignore"):
+        z = state.eta - offs + s / w
     dispersion = 1.0
     if fam.name in ("gaussian", "gamma", "tweedie"):
         dispersion = fam.pearson(state.eta, ys, a) / (n - state.rank)
@@ -972,7 +921,7 @@ def design_summary(
     return replace(s, terms=_terms(terms, names), sources=pointers)
 
 
-def _check_levels(fam: _Family, y: np.ndarray, labels: Mapping[str, np.ndarray]) -> None:
+def _check_levels(fam: GlmFamily, y: np.ndarray, labels: Mapping[str, np.ndarray]) -> None:
     """A level of a categorical variable whose rows all have the same outcome at the boundary
     (only successes or only failures; only zero counts) has an infinite coefficient, whichever
     level is the reference; named here by its label, before any fit."""

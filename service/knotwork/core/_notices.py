@@ -21,6 +21,7 @@ CODES: dict[str, str] = {
     "rounded_matrix": "the matrix looks rounded, and rounding can move its small eigenvalues",
     "large_sample_tests": "with large n the significance tests reject at trivial collinearity",
     "near_singular": "the smallest eigenvalue is tiny: results are sensitive to the data",
+    "glm_remedies_omitted": "ridge, components and the comparison are not given for a GLM family",
     "skipped_without_n": "sections that need the number of observations were skipped (no n)",
     "skipped_without_response": "sections that need a response or rows were skipped",
 }
