@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import msgspec
+
 from knotwork.core import (
     KnotworkError,
     Options,
@@ -19,6 +21,7 @@ from knotwork_contract import Assessment, AssessOptions, Problem
 
 from ._errors import UnusableInput
 from ._prepared import CorrelationData, MomentsData, Prepared, TableData
+from ._provenance import provenance
 
 __all__ = ["core_options", "run", "summarize"]
 
@@ -79,8 +82,13 @@ def summarize(prepared: Prepared) -> Summary:
     )
 
 
-def run(prepared: Prepared) -> Assessment:
+def run(prepared: Prepared, *, full: bool = False) -> Assessment:
     """Summarize and assess: the whole computation for one request, at the detail it asks.
+
+    The answer carries its provenance (the service version, the fingerprint of the summary
+    and options, the options in force) at every detail. ``full=True`` keeps every table
+    whatever the request's ``detail`` (the report draws from them); the provenance is the
+    same as that of the JSON answer to the same request.
 
     Raises
     ------
@@ -89,9 +97,11 @@ def run(prepared: Prepared) -> Assessment:
         pointers translated into the request the client sent (``prepared.origin``).
     """
     try:
-        result = assess(summarize(prepared), core_options(prepared.options))
+        summary = summarize(prepared)
+        result = assess(summary, core_options(prepared.options))
     except KnotworkError as exc:
         where = prepared.origin
         problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]
         raise UnusableInput(exc.message, problems, kind=exc.kind) from None
-    return result if prepared.options.detail == "full" else summary_detail(result)
+    result = msgspec.structs.replace(result, provenance=provenance(summary, prepared.options))
+    return result if full or prepared.options.detail == "full" else summary_detail(result)
