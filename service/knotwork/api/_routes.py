@@ -60,6 +60,8 @@ __all__ = [
 ]
 
 JSON = "application/json"
+#: litestar adds the charset to a text type: the answer's type is REPORT_MEDIA_TYPE.
+HTML = REPORT_MEDIA_TYPE.split(";")[0]
 _TABLE_MEDIA = (ARROW_STREAM, ARROW_FILE, PARQUET)
 _PUBLIC = {"public": True}
 
@@ -275,7 +277,7 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
     ),
     responses=REPORT_RESPONSES,
     response_description="The report page.",
-    media_type=REPORT_MEDIA_TYPE,
+    media_type=HTML,
     status_code=200,
     tags=["assessment"],
 )
@@ -292,7 +294,7 @@ async def report(request: Request[Any, Any, Any]) -> Response[bytes]:
     _record("/v1/report", queue_s, compute_s, encoding=media)
     return Response(
         page,
-        media_type=REPORT_MEDIA_TYPE,
+        media_type=HTML,
         headers={"Content-Security-Policy": CONTENT_SECURITY_POLICY},
     )
 

@@ -465,7 +465,7 @@ def ridge_chart(ridge: Any, names: Sequence[str], chosen: tuple[str, float] | No
     ks = [point.k for point in trace]
     per_variable = all(len(point.vif) == len(names) for point in trace) and len(names) > 0
     coefficients = all(point.coefficients is not None for point in trace) and per_variable
-    figure = Figure(figsize=(WIDTH_IN, 3.0), layout="constrained")
+    figure = Figure(figsize=(WIDTH_IN, 3.3), layout="constrained")
     axes = figure.subplots(1, 2) if coefficients else [figure.add_subplot()]
     ax = axes[0]
     if per_variable:
@@ -514,7 +514,8 @@ def ridge_chart(ridge: Any, names: Sequence[str], chosen: tuple[str, float] | No
             )
         axis.grid(color="#EEEEEE", linewidth=0.5)
         axis.set_axisbelow(True)
-    ax.legend(loc="upper right")
+    handles, labels = ax.get_legend_handles_labels()
+    figure.legend(handles, labels, loc="outside lower center", ncols=len(labels))
     title = "Ridge trace"
     description = (
         f"Ridge trace over {len(ks)} values of k from {ks[0]:.3g} to {ks[-1]:.3g} on a log "

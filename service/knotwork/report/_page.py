@@ -414,20 +414,27 @@ def _remedies_section(a: Any) -> str:
             format_vif(r.max_vif),
             _num(r.r_squared),
             _num(r.r_squared_lost),
-            escape(r.meaning),
         ]
         for r in comparison.rows
     ]
-    cautions = "".join(f"<li>{escape(c)}</li>" for c in comparison.cautions)
+    # What each remedy does to the meaning of the coefficients, once, below the table.
+    meanings = [r.meaning for r in comparison.rows if r.meaning]
+    cautions = "".join(
+        f"<li>{escape(c)}</li>" for c in dict.fromkeys(meanings or comparison.cautions)
+    )
     return (
         '<section id="remedies"><h2>Remedies side by side</h2>'
         + _table(
             "Remedies",
-            ["remedy", "setting", "parameters", "largest VIF", "R²", "R² lost", "meaning"],
+            ["remedy", "setting", "parameters", "largest VIF", "R²", "R² lost"],
             rows,
             {2, 3, 4, 5},
         )
-        + (f"<ul>{cautions}</ul>" if cautions else "")
+        + (
+            f"<h3>What each remedy does to the coefficients</h3><ul>{cautions}</ul>"
+            if cautions
+            else ""
+        )
         + "</section>"
     )
 
