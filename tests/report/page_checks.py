@@ -55,9 +55,9 @@ def outside_references(text: str) -> list[str]:
     found = [f"<{tag}>" for tag, _ in page.tags if tag in FORBIDDEN]
     for tag, attrs in page.tags:
         for name, value in attrs.items():
-            if name in ("href", "src", "xlink:href", "srcset", "action", "poster", "data"):
-                if value is None or not value.startswith("#"):
-                    found.append(f"<{tag} {name}={value!r}>")
+            linking = name in ("href", "src", "xlink:href", "srcset", "action", "poster", "data")
+            if linking and (value is None or not value.startswith("#")):
+                found.append(f"<{tag} {name}={value!r}>")
     found += re.findall(r"url\((?!#)[^)]*\)", text)
     found += re.findall(r"@import[^;]*;", text)
     found += re.findall(r"[a-z]+://\S{0,40}", text)
