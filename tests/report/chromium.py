@@ -15,7 +15,7 @@ import os
 import shutil
 import subprocess
 import time
-from contextlib import ExitStack
+from contextlib import ExitStack, suppress
 from pathlib import Path
 from typing import Any
 
@@ -183,10 +183,9 @@ class Browser:
         """Close the browser (the process this object started), killing it if it hangs."""
         try:
             if getattr(self, "socket", None) is not None:
-                try:
+                # It may close the socket before it answers.
+                with suppress(Exception):
                     self.call("Browser.close", timeout=10)
-                except Exception:  # it may close the socket before it answers
-                    pass
             self._stack.close()
         finally:
             try:
