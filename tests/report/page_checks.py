@@ -49,14 +49,18 @@ class Page(HTMLParser):
         self.text.append(data)
 
 
-def outside_references(text: str) -> list[str]:
-    """Everything in the page that could make a request, or names a place outside it."""
+def outside_references(text: str, allowed: frozenset[str] = frozenset()) -> list[str]:
+    """Everything in the page that could make a request, or names a place outside it.
+
+    ``allowed``: links the page may hold (the index page's links to the reports beside it).
+    """
     page = Page(text)
     found = [f"<{tag}>" for tag, _ in page.tags if tag in FORBIDDEN]
     for tag, attrs in page.tags:
         for name, value in attrs.items():
             linking = name in ("href", "src", "xlink:href", "srcset", "action", "poster", "data")
-            if linking and (value is None or not value.startswith("#")):
+            inside = value is not None and (value.startswith("#") or value in allowed)
+            if linking and not inside:
                 found.append(f"<{tag} {name}={value!r}>")
     found += re.findall(r"url\((?!#)[^)]*\)", text)
     found += re.findall(r"@import[^;]*;", text)

@@ -473,7 +473,8 @@ def _notes_section(a: Any) -> str:
         "Decisions on regulated models follow local rules and qualified review; this report is "
         "evidence for that review, not a substitute for it.",
     ]
-    items = "".join(f"<li>{escape(c)}</li>" for c in [*cautions, *fixed])
+    # The assessment states its cautions; an answer without them still gets the two fixed ones.
+    items = "".join(f"<li>{escape(c)}</li>" for c in (cautions or fixed))
     parts.append(f'<div class="cautions"><ul>{items}</ul></div></section>')
     return "".join(parts)
 
