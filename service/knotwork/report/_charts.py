@@ -273,7 +273,7 @@ def terms_chart(assessment: Any) -> Chart | None:
         base=1.0,
         limit_label=f"square root of the threshold, {limit:.3g}",
     )
-    ax.set_xlabel("scaled GVIF, GVIF^(1/(2 df)) (log scale)")
+    ax.set_xlabel("scaled GVIF (log scale)")
     title = "Multi-column terms: scaled generalized VIF"
     ax.set_title(title, loc="left")
     ax.legend(loc="lower right", ncols=2)
