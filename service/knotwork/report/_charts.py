@@ -26,7 +26,7 @@ import matplotlib
 from matplotlib.axes import Axes
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
-from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+from matplotlib.ticker import FuncFormatter, LogLocator, MaxNLocator, NullFormatter
 
 __all__ = [
     "BLUE",
@@ -51,6 +51,8 @@ GREY = "#6F6F6F"
 
 #: Variables per inflation chart: a taller one would not fit a printed page (A4 or Letter).
 PER_CHART = 30
+#: Drops of a removal path named on its axis; a longer path is numbered.
+NAMED_STEPS = 12
 #: Characters of a name shown on an axis (the tables give names in full).
 LABEL_CHARS = 28
 WIDTH_IN = 6.6  # 168 mm: fits the printable width of A4 and of Letter
@@ -152,6 +154,12 @@ def _plain_log(axis: Any) -> None:
     axis.set_minor_formatter(NullFormatter())
 
 
+def _legend_below(figure: Figure, ax: Axes) -> None:
+    """The legend in one row under the chart, where it covers no point."""
+    handles, labels = ax.get_legend_handles_labels()
+    figure.legend(handles, labels, loc="outside lower center", ncols=max(1, len(labels)))
+
+
 def _threshold_line(ax: Axes, value: float, label: str, *, vertical: bool) -> None:
     if vertical:
         ax.axvline(value, color=BLACK, linestyle="--", linewidth=1.0, label=label)
@@ -244,7 +252,7 @@ def inflation_charts(assessment: Any) -> list[Chart]:
         part = f" ({number} of {len(chunks)})" if len(chunks) > 1 else ""
         title = f"Variance inflation of each predictor{part}"
         ax.set_title(title, loc="left")
-        ax.legend(loc="lower right", ncols=2)
+        _legend_below(figure, ax)
         above = [v.name for v in chunk if v.aliased or v.above_threshold]
         description = (
             f"Horizontal dot chart of the VIF of {len(chunk)} predictors on a log scale with a "
@@ -276,7 +284,7 @@ def terms_chart(assessment: Any) -> Chart | None:
     ax.set_xlabel("scaled GVIF (log scale)")
     title = "Multi-column terms: scaled generalized VIF"
     ax.set_title(title, loc="left")
-    ax.legend(loc="lower right", ncols=2)
+    _legend_below(figure, ax)
     description = (
         f"Dot chart of the scaled GVIF of {len(terms)} terms against the square root of the "
         f"threshold, {limit:.3g}: "
@@ -342,7 +350,7 @@ def conditioning_chart(conditioning: Any) -> Chart | None:
     left.set_xlabel("component (largest eigenvalue first)")
     left.set_ylabel("condition index (log scale)")
     left.set_title("Condition indices", loc="left")
-    left.legend(loc="upper left")
+    _legend_below(figure, left)
     left.grid(axis="y", color="#DDDDDD", linewidth=0.5)
     left.set_axisbelow(True)
     if right is not None:
@@ -435,17 +443,22 @@ def removal_chart(removal: Any) -> Chart | None:
     ax.set_yscale("log")
     _plain_log(ax.yaxis)
     ax.set_ylim(0.9, top)
-    ax.set_xticks(
-        xs,
-        labels,
-        rotation=35 if len(xs) > 4 else 0,
-        ha="right" if len(xs) > 4 else "center",
-        rotation_mode="anchor",
-    )
+    if len(steps) <= NAMED_STEPS:
+        ax.set_xticks(
+            xs,
+            labels,
+            rotation=35 if len(xs) > 4 else 0,
+            ha="right" if len(xs) > 4 else "center",
+            rotation_mode="anchor",
+        )
+    else:
+        # Too many names to read side by side: the drops by number (the table names them).
+        ax.set_xlabel("drops (numbered as in the table below; 0 is all predictors)")
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
     ax.set_ylabel("largest VIF left (log scale)")
     title = "Removal path: the largest VIF left after each drop"
     ax.set_title(title, loc="left")
-    ax.legend(loc="upper right")
+    _legend_below(figure, ax)
     ax.grid(axis="y", color="#DDDDDD", linewidth=0.5)
     ax.set_axisbelow(True)
     description = (
@@ -514,8 +527,7 @@ def ridge_chart(ridge: Any, names: Sequence[str], chosen: tuple[str, float] | No
             )
         axis.grid(color="#EEEEEE", linewidth=0.5)
         axis.set_axisbelow(True)
-    handles, labels = ax.get_legend_handles_labels()
-    figure.legend(handles, labels, loc="outside lower center", ncols=len(labels))
+    _legend_below(figure, ax)
     title = "Ridge trace"
     description = (
         f"Ridge trace over {len(ks)} values of k from {ks[0]:.3g} to {ks[-1]:.3g} on a log "

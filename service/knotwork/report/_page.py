@@ -78,6 +78,10 @@ dd { margin: 0; }
 """
 
 
+#: Names a sentence of the finding lists before it says how many more (the tables list all).
+FINDING_NAMES = 8
+
+
 def _get(record: Any, name: str, default: Any = None) -> Any:
     return getattr(record, name, default) if record is not None else default
 
@@ -103,8 +107,11 @@ def _num(value: Any, digits: int = 4) -> str:
     return escape(str(value))
 
 
-def _names(names: Iterable[str]) -> str:
+def _names(names: Iterable[str], limit: int | None = None) -> str:
+    """Names in a sentence; past ``limit`` of them, the first ones and how many more."""
     items = [escape(n) for n in names]
+    if limit is not None and len(items) > limit:
+        return ", ".join(items[:limit]) + f" and {len(items) - limit} more"
     if len(items) <= 2:
         return " and ".join(items)
     return ", ".join(items[:-1]) + " and " + items[-1]
@@ -137,7 +144,9 @@ def _table(
 def _figure(chart: Chart | None) -> str:
     if chart is None:
         return ""
-    return f"<figure>{chart.svg}<figcaption>{escape(chart.description)}</figcaption></figure>"
+    # The chart's title and its text alternative (numbers in words) are inside the SVG, where a
+    # screen reader finds them; the tables beside the chart give the same numbers to the eye.
+    return f"<figure>{chart.svg}</figure>"
 
 
 def _plural(count: int, one: str, many: str) -> str:
@@ -155,7 +164,7 @@ def _finding(a: Any) -> str:
         sentences.append(
             f"Of {_plural(len(variables), 'predictor', 'predictors')}, {len(above)} "
             f"{'has' if len(above) == 1 else 'have'} a variance inflation factor above the "
-            f"threshold of {threshold:g}: {_names(above)}."
+            f"threshold of {threshold:g}: {_names(above, FINDING_NAMES)}."
         )
     else:
         sentences.append(
@@ -187,10 +196,11 @@ def _finding(a: Any) -> str:
         drops = [s.drop for s in removal.steps]
         if drops:
             sentences.append(
-                f"The removal sequence proposes dropping {_names(drops)}, in that order, which "
+                f"The removal sequence proposes dropping {_names(drops, FINDING_NAMES)}, in that "
+                "order, which "
                 f"leaves the largest VIF at {format_vif(removal.max_vif_left)}"
                 + (
-                    f"; still above the threshold: {_names(removal.still_high)}."
+                    f"; still above the threshold: {_names(removal.still_high, FINDING_NAMES)}."
                     if removal.still_high
                     else "."
                 )
