@@ -212,3 +212,21 @@ def test_fifty_predictors_stay_within_the_budget(client: Any) -> None:
     assert outside_references(response.text) == []
     for j in range(50):
         assert f"<td>measure_{j:02d}</td>" in response.text
+
+
+def test_the_report_route_asks_for_a_token_like_assess() -> None:
+    from litestar.testing import TestClient
+
+    from knotwork.api import create_app
+    from knotwork.settings import Settings
+
+    token = "report-test-token-0123456789"
+    with TestClient(create_app(Settings(tokens=(token,), concurrency=1))) as guarded:
+        body = msgspec.json.encode(demo_body(sections=["variables"]))
+        refused = guarded.post("/v1/report", content=body, headers={"Content-Type": JSON})
+        assert refused.status_code == 401
+        assert refused.headers["content-type"].startswith("application/problem+json")
+        headers = {"Content-Type": JSON, "Authorization": f"Bearer {token}"}
+        assert guarded.post("/v1/report", content=body, headers=headers).status_code == 200
+        metrics = guarded.get("/metrics").text
+        assert 'route="/v1/report"' in metrics
