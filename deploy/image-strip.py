@@ -165,8 +165,11 @@ def main(argv: list[str]) -> int:
             changed.append(path)
             saved += cut
     # The dynamic loader must still open each one (in a fresh process, with this Python's own
-    # symbols there for the extension modules).
-    check = "import ctypes, sys\nfor p in sys.argv[1:]: ctypes.CDLL(p)"
+    # symbols there for the extension modules). The process then leaves at once: an extension
+    # opened this way was never initialised as a module, and some (pybind11's, as matplotlib's
+    # ft2font, untrimmed too) abort in their exit-time destructors, which say nothing about
+    # whether the loader could open them.
+    check = "import ctypes, os, sys\nfor p in sys.argv[1:]: ctypes.CDLL(p)\nos._exit(0)"
     done = subprocess.run([sys.executable, "-c", check, *changed], check=False)
     if done.returncode != 0:
         print("image-strip: a trimmed library no longer loads", file=sys.stderr)

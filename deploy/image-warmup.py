@@ -3,9 +3,10 @@
 The runtime stage of deploy/Containerfile installs its packages without bytecode, prunes what
 nothing imports at run time, then runs this script with bytecode writing on. It starts the
 service the way the start command does (uvicorn with the h11 parser, the app from
-``knotwork.__main__:worker_app``) on a free loopback port, sends every kind of request (JSON,
-Arrow IPC stream and file, Parquet, a batch, the docs page and each asset it links, the OpenAPI
-document, metrics, and the error paths), checks each answer and stops the server.
+``knotwork.__main__:worker_app``) on a free loopback port, sends every kind of request (JSON, Arrow
+IPC stream and file, Parquet, a batch, a report from rows and from Parquet, the docs page and each
+asset it links, the OpenAPI document, metrics, and the error paths), checks each answer and stops
+the server.
 
 So every module the service loads gets its ``.pyc`` now (the read-only root filesystem allows
 none at run time), and nothing else does: a module that only a rare path imports is compiled in
@@ -125,6 +126,16 @@ class Client:
             self.call(f"assess {name}", "/v1/assess", 200, JSON, {"input": item})
         for name, (media, body) in _tables().items():
             self.call(f"assess {name}", "/v1/assess?response=c", 200, JSON, body, kind=media)
+        # One report as JSON rows and one from Parquet: matplotlib and the SVG backend load.
+        for name, body, kind, path in (
+            ("report rows", {"input": ROWS}, JSON, "/v1/report"),
+            ("report parquet", _tables()["parquet"][1], PARQUET_MEDIA, "/v1/report?response=c"),
+        ):
+            page = self.call(name, path, 200, "text/html", body, kind=kind).decode()
+            if page.count("<svg") < 3 or "://" in page or "<script" in page:
+                raise AssertionError(f"{name}: not a self-contained page with its charts")
+        too_few = {"input": {**CORRELATION, "n": 3}}
+        self.call("report of unusable input", "/v1/report", 422, PROBLEM, too_few)
         batch = {"items": [{"input": CORRELATION}, {"input": {**CORRELATION, "n": 2}}]}
         self.call("batch", "/v1/assess/batch", 200, JSON, batch)
         # The error paths: no token, a malformed body, unusable input, a broken table.

@@ -58,3 +58,17 @@ def test_command_line_help_uses_our_labels():
         main(["--help"])
     for label in FOREIGN:
         assert label not in text + buffer.getvalue()
+
+
+def test_the_report_page_uses_our_labels():
+    from datetime import UTC, datetime
+
+    from knotwork.codecs import Limits, decode_assess, run
+    from knotwork.demo import request_body
+    from knotwork.report import render_report
+
+    body = msgspec.json.encode(request_body(garden_centres(240, 7), 5.0))
+    page = render_report(run(decode_assess(body, Limits()), full=True), datetime.now(UTC))
+    for label in FOREIGN:
+        assert label not in page
+    assert "<constant>" not in page  # escaped wherever a name is shown

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 import msgspec
 
@@ -952,6 +953,30 @@ class Uncertainty(_Result, frozen=True):
     notes: Sequence[str] = ()
 
 
+class Provenance(_Result, frozen=True):
+    """Where an answer comes from: the service, the input's fingerprint and the options used.
+
+    Attributes
+    ----------
+    service_version
+        The version of the service that computed the answer.
+    fingerprint
+        ``sha256:`` and the hex SHA-256 digest of a canonical form of the summary the
+        diagnostics were computed from (n, the names in order, the response, the terms, the
+        means and standard deviations when known, the correlation matrix, each number rounded
+        to a stated precision) together with ``options``: the same data sent as JSON rows,
+        Arrow or Parquet gives the same fingerprint, and a change to the data or to an option
+        gives another (docs/contract.md states the canonical form).
+    options
+        The options in force after defaults: every option of the request, by its wire name,
+        with the value used (a null section setting means the service's default rule).
+    """
+
+    service_version: str = ""
+    fingerprint: str = ""
+    options: dict[str, Any] = msgspec.field(default_factory=dict)
+
+
 class Assessment(_Result, frozen=True):
     """The full collinearity assessment of one design.
 
@@ -1010,6 +1035,9 @@ class Assessment(_Result, frozen=True):
     uncertainty
         How the intervals, p-values and shares in ``variables`` and ``terms`` were made, and
         (bootstrap) the stability of the removal; None without ``options.uncertainty``.
+    provenance
+        The service version, the input's fingerprint and the options in force (kept at every
+        detail).
     """
 
     input_kind: str = ""
@@ -1033,6 +1061,7 @@ class Assessment(_Result, frozen=True):
     detail: str = "full"
     model: ModelFit | None = None
     uncertainty: Uncertainty | None = None
+    provenance: Provenance | None = None
 
 
 #: Every record an answer can contain, the answer itself last.
@@ -1060,5 +1089,6 @@ RESULT_TYPES: tuple[type[msgspec.Struct], ...] = (
     RepairReport,
     ModelFit,
     Uncertainty,
+    Provenance,
     Assessment,
 )

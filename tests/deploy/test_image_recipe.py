@@ -12,6 +12,8 @@ from __future__ import annotations
 import ast
 import importlib.metadata
 import re
+import subprocess
+import sys
 from html.parser import HTMLParser
 from pathlib import Path, PurePosixPath
 
@@ -50,7 +52,7 @@ def _modules_of(distributions: set[str]) -> set[str]:
 
 def _removed_subpackages() -> set[str]:
     """Dotted names of the packages the recipe deletes from inside a distribution."""
-    paths = re.findall(r'"\$site"/((?:scipy|numpy)/[A-Za-z_]+)(?=[\s\\])', _recipe())
+    paths = re.findall(r'"\$site"/((?:scipy|numpy|fontTools)/[A-Za-z_]+)(?=[\s\\])', _recipe())
     return {path.replace("/", ".") for path in paths}
 
 
@@ -103,3 +105,29 @@ def test_the_swagger_ui_files_kept_are_the_ones_the_docs_page_loads() -> None:
         parser.feed(client.get("/docs").text)
     loaded = {PurePosixPath(link).name for link in parser.links}
     assert loaded == kept
+
+
+def test_drawing_a_report_loads_nothing_the_image_leaves_out() -> None:
+    # matplotlib and fontTools are imported by matplotlib's own code, which the static reading
+    # above does not see: draw the demo's report in a fresh process and look at what it loaded.
+    gone = {name for name in _removed_subpackages() if name.startswith("fontTools.")}
+    assert "fontTools.ttLib" in gone  # the parsing found the list
+    script = (
+        "import sys, datetime, msgspec\n"
+        "from knotwork.codecs import Limits, decode_assess, run\n"
+        "from knotwork.demo import garden_centres, request_body\n"
+        "from knotwork.report import render_report\n"
+        "body = msgspec.json.encode(request_body(garden_centres(240, 7), 5.0))\n"
+        "render_report(run(decode_assess(body, Limits()), full=True), datetime.datetime.now())\n"
+        "print('\\n'.join(sorted(sys.modules)))\n"
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", script], capture_output=True, text=True, check=True, timeout=300
+    )
+    loaded = set(done.stdout.split())
+    assert "matplotlib.backends.backend_svg" in loaded
+    clashes = sorted(m for m in loaded if any(m == g or m.startswith(g + ".") for g in gone))
+    assert not clashes, f"a report loads {clashes}, which deploy/Containerfile leaves out"
+    # The fonts kept include the one the charts' layout measures with.
+    kept = re.search(r"-name '\*\.ttf'((?:\s+\\?\s*! -name \S+)+)\s+-delete", _recipe())
+    assert kept is not None and "'DejaVuSans.ttf'" in kept.group(1)

@@ -12,6 +12,10 @@ gate on:
     3  at least one model could not be assessed (unreadable file, rejected input, service
        unreachable); reports for the others are still written
 
+With ``--report-html`` each assessed model also gets its HTML report (``OUT/<model>.html``, from
+the service's report route) and ``OUT/index.html`` lists every model with its status, its
+largest VIF and a link to its page.
+
 The threshold is a rule of thumb (VIF 5 or 10 is common practice); decisions on regulated
 models follow local rules and qualified review.
 """
@@ -20,6 +24,7 @@ from __future__ import annotations
 
 import argparse
 import csv
+import html
 import json
 import math
 import os
@@ -32,6 +37,7 @@ from concurrent.futures import ThreadPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, TextIO
+from urllib.parse import quote
 
 import httpx
 from tqdm import tqdm
@@ -110,6 +116,7 @@ class Outcome:
     status: str  # "pass", "fail" or "error"
     report: dict[str, Any]
     row: dict[str, Any]
+    page: str | None = None  # the HTML report's file name, when one was written
 
 
 # --- command line ---------------------------------------------------------------------------
@@ -142,6 +149,11 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--token-file", type=Path, help="file whose first line is the bearer token")
     p.add_argument("--out", type=Path, default=Path("knotwork-reports"), help="report folder")
     p.add_argument("--report-csv", type=Path, help="combined table (default OUT/screen.csv)")
+    p.add_argument(
+        "--report-html",
+        action="store_true",
+        help="also write each model's HTML report (OUT/<model>.html) and OUT/index.html",
+    )
     p.add_argument(
         "--summary-only",
         action="store_true",
@@ -370,8 +382,21 @@ def _max_vif(doc: dict[str, Any]) -> tuple[float | None, str | None]:
 # --- running --------------------------------------------------------------------------------
 
 
-def _screen(client: Client, model: Model) -> Outcome:
+def _post_report(client: Client, payload: Any, target: Path) -> None:
+    response = client._send(
+        "POST",
+        "/v1/report",
+        content=payload.content,
+        content_type=payload.content_type,
+        params=payload.params,
+        accept="text/html, application/problem+json",
+    )
+    client._write(client._page(response), target)
+
+
+def _screen(client: Client, model: Model, pages: Path | None = None) -> Outcome:
     base: dict[str, Any] = {"model": model.name, "source": str(model.path)}
+    page: str | None = None
     try:
         if model.summary_only:
             table = dict(model.table)
@@ -380,6 +405,10 @@ def _screen(client: Client, model: Model) -> Outcome:
         else:
             payload = client._assess_payload(model.path, {**model.table, **model.options})
         doc = client._post_assess(payload)
+        if pages is not None and isinstance(doc, dict):
+            # The same body again: the page is drawn from the same summary and options.
+            page = f"{model.name}.html" if model.name != "index" else "index.model.html"
+            _post_report(client, payload, pages / page)
     except Exception as exc:  # one bad model must not stop the batch; it is reported instead
         error: dict[str, Any] = {"kind": type(exc).__name__, "message": str(exc)}
         if isinstance(exc, ServiceError):
@@ -427,7 +456,7 @@ def _screen(client: Client, model: Model) -> Outcome:
         "error": "",
         **_uncertainty_columns(doc, worst),
     }
-    return Outcome(model, status, report, row)
+    return Outcome(model, status, report, row, page)
 
 
 def _uncertainty_columns(doc: dict[str, Any], worst: str | None) -> dict[str, Any]:
@@ -535,6 +564,45 @@ def _write_reports(outcomes: list[Outcome], out: Path, table: Path) -> None:
             writer.writerow({k: ("" if o.row.get(k) is None else o.row.get(k)) for k in CSV_FIELDS})
 
 
+_INDEX_STYLE = """
+body { font: 15px/1.5 system-ui, "DejaVu Sans", sans-serif; max-width: 60rem; margin: 1.5rem auto;
+  padding: 0 1rem; color: #111; }
+table { border-collapse: collapse; width: 100%; font-variant-numeric: tabular-nums; }
+th, td { text-align: left; padding: .3rem .6rem; border-bottom: 1px solid #c8c8c8; }
+th { border-bottom: 1.5px solid #111; }
+td.num { text-align: right; }
+.fail, .error { color: #D55E00; font-weight: 600; }
+"""
+
+
+def _index_page(outcomes: list[Outcome]) -> str:
+    """One row per model: status, largest VIF and a link to its page (escaped, self-contained)."""
+    rows = []
+    for o in outcomes:
+        max_vif = o.row.get("max_vif")
+        shown = "" if max_vif in (None, "") else (
+            "infinite" if max_vif == "inf" else f"{float(max_vif):.2f}"
+        )  # fmt: skip
+        name = html.escape(o.model.name)
+        link = f'<a href="{html.escape(quote(o.page))}">{name}</a>' if o.page else name
+        note = html.escape(str(o.row.get("error") or o.row.get("breaches") or ""))
+        rows.append(
+            f"<tr><td>{link}</td><td class={o.status}>{html.escape(o.status)}</td>"
+            f'<td class="num">{shown}</td><td>{note}</td></tr>'
+        )
+    return (
+        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+        '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
+        "style-src 'unsafe-inline'\"><title>Collinearity reports</title>"
+        f"<style>{_INDEX_STYLE}</style></head><body><h1>Collinearity reports</h1>"
+        f"<p>{len(outcomes)} models. Thresholds are rules of thumb; decisions on regulated "
+        "models follow local rules and qualified review.</p>"
+        "<table><thead><tr><th scope=col>model</th><th scope=col>status</th>"
+        "<th scope=col>largest VIF</th><th scope=col>breaks the rule / error</th></tr></thead>"
+        f"<tbody>{''.join(rows)}</tbody></table></body></html>\n"
+    )
+
+
 def main(
     argv: Sequence[str] | None = None,
     *,
@@ -566,8 +634,11 @@ def main(
         transport=transport,
         retry=Retry(attempts=args.attempts, total=max(60.0, 4 * args.timeout)),
     )
+    pages = args.out if args.report_html else None
+    if pages is not None:
+        pages.mkdir(parents=True, exist_ok=True)
     with client, ThreadPoolExecutor(max_workers=args.parallel) as pool:
-        futures = {pool.submit(_screen, client, m): i for i, m in enumerate(models)}
+        futures = {pool.submit(_screen, client, m, pages): i for i, m in enumerate(models)}
         for future in as_completed(futures):
             outcome = future.result()
             outcomes[futures[future]] = outcome
@@ -575,6 +646,8 @@ def main(
     progress.finish()
     done = [o for o in outcomes if o is not None]
     _write_reports(done, args.out, args.report_csv or args.out / "screen.csv")
+    if pages is not None:
+        (pages / "index.html").write_text(_index_page(done), encoding="utf-8")
     if any(o.status == "error" for o in done):
         return EXIT_ERROR
     if any(o.status == "fail" for o in done):

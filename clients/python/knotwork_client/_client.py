@@ -6,9 +6,11 @@ without doing any I/O; the two subclasses only send, sleep and loop.
 
 from __future__ import annotations
 
+import os
 import random
 import time
 from collections.abc import Awaitable, Callable, Iterable, Mapping
+from pathlib import Path
 from types import TracebackType
 from typing import Any
 
@@ -50,6 +52,9 @@ _RETRIED_ERRORS: tuple[type[Exception], ...] = (
 _TABLE_ARGS = ("response", "weights", "categorical", "names", "columns", "offset", "trials")
 
 BatchResult = Assessment | ProblemDetails
+
+#: What the report route answers with; its errors stay problem+json.
+_REPORT_ACCEPT = "text/html, application/problem+json"
 
 
 def _problem_from(response: httpx.Response) -> ProblemDetails:
@@ -173,6 +178,23 @@ class _BaseClient:
         raise _error_for(response)
 
     @staticmethod
+    def _page(response: httpx.Response) -> bytes:
+        if not response.is_success:
+            raise _error_for(response)
+        media = response.headers.get("Content-Type", "")
+        if not media.startswith("text/html"):
+            raise ResponseFormatError(
+                f"{response.status_code} answer from {response.request.url} is not HTML: {media}"
+            )
+        return response.content
+
+    @staticmethod
+    def _write(page: bytes, path: str | os.PathLike[str]) -> Path:
+        target = Path(path)
+        target.write_bytes(page)
+        return target
+
+    @staticmethod
     def _assessment(doc: Any) -> Assessment:
         try:
             return msgspec.convert(doc, Assessment)
@@ -269,8 +291,11 @@ class Client(_BaseClient):
         content_type: str | None = None,
         params: Mapping[str, str] | None = None,
         retry: bool = True,
+        accept: str | None = None,
     ) -> httpx.Response:
-        headers = {"Content-Type": content_type} if content_type else None
+        headers = {"Content-Type": content_type} if content_type else {}
+        if accept is not None:
+            headers["Accept"] = accept
         started = self._clock()
         attempt = 0
         while True:
@@ -343,6 +368,24 @@ class Client(_BaseClient):
             params=payload.params,
         )
         return self._json(response)
+
+    def report(self, data: Any, path: str | os.PathLike[str], **options: Any) -> Path:
+        """Assess one model and write its HTML report: ``POST /v1/report``.
+
+        Takes the data and options of :meth:`assess`; writes the page the service answers
+        (one self-contained HTML file: inline style, charts as inline SVG, nothing fetched) to
+        ``path`` and returns that path. The service's errors raise as for :meth:`assess`.
+        """
+        payload = self._assess_payload(data, dict(options))
+        response = self._send(
+            "POST",
+            "/v1/report",
+            content=payload.content,
+            content_type=payload.content_type,
+            params=payload.params,
+            accept=_REPORT_ACCEPT,
+        )
+        return self._write(self._page(response), path)
 
     def assess_batch(self, items: Iterable[Any], **options: Any) -> list[BatchResult]:
         """Assess many models in one request: ``POST /v1/assess/batch``.
@@ -430,8 +473,11 @@ class AsyncClient(_BaseClient):
         content_type: str | None = None,
         params: Mapping[str, str] | None = None,
         retry: bool = True,
+        accept: str | None = None,
     ) -> httpx.Response:
-        headers = {"Content-Type": content_type} if content_type else None
+        headers = {"Content-Type": content_type} if content_type else {}
+        if accept is not None:
+            headers["Accept"] = accept
         started = self._clock()
         attempt = 0
         while True:
@@ -477,6 +523,20 @@ class AsyncClient(_BaseClient):
             params=payload.params,
         )
         return self._json(response)
+
+    async def report(self, data: Any, path: str | os.PathLike[str], **options: Any) -> Path:
+        """Assess one model and write its HTML report (see :meth:`Client.report`)."""
+        payload = await anyio.to_thread.run_sync(self._assess_payload, data, dict(options))
+        response = await self._send(
+            "POST",
+            "/v1/report",
+            content=payload.content,
+            content_type=payload.content_type,
+            params=payload.params,
+            accept=_REPORT_ACCEPT,
+        )
+        page = self._page(response)
+        return await anyio.to_thread.run_sync(self._write, page, path)
 
     async def assess_batch(self, items: Iterable[Any], **options: Any) -> list[BatchResult]:
         """Assess many models in one request (see :meth:`Client.assess_batch`)."""

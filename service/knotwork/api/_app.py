@@ -21,7 +21,7 @@ from ._examples import TABLE_COLUMNS, TABLE_EXAMPLE
 from ._logging import AccessLog
 from ._metrics import metrics, prometheus_config
 from ._problems import handle_exception
-from ._routes import assess, assess_batch, healthz, openapi_json, readyz
+from ._routes import assess, assess_batch, healthz, openapi_json, readyz, report
 from ._work import WorkPool
 
 __all__ = ["create_app"]
@@ -135,6 +135,7 @@ def create_app(settings: Settings | None = None) -> Litestar:
         route_handlers=[
             assess,
             assess_batch,
+            report,
             healthz,
             readyz,
             openapi_json,

@@ -52,8 +52,10 @@ from ._problems import PROBLEM_BASE, PROBLEM_MEDIA_TYPE, TITLES
 __all__ = [
     "ASSESS_RESPONSES",
     "BATCH_RESPONSES",
+    "REPORT_RESPONSES",
     "AssessOperation",
     "BatchOperation",
+    "ReportOperation",
     "openapi_document",
 ]
 
@@ -140,6 +142,19 @@ class AssessOperation(Operation):
             },
         )
         self.parameters = [*(self.parameters or []), *_query_parameters()]
+
+
+@dataclass
+class ReportOperation(AssessOperation):
+    """``POST /v1/report``: the request bodies of ``/v1/assess``; the answer is an HTML page."""
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        assert self.request_body is not None and not isinstance(self.request_body, Reference)
+        self.request_body.description = (
+            "The same bodies as POST /v1/assess: the input and options as JSON; or a table as "
+            "an Arrow IPC stream or file, or as Parquet, with options as query parameters."
+        )
 
 
 @dataclass
@@ -255,6 +270,8 @@ ASSESS_RESPONSES = {
         ),
     ),
 }
+#: Error responses of ``POST /v1/report``: those of ``POST /v1/assess``.
+REPORT_RESPONSES = dict(ASSESS_RESPONSES)
 #: Error responses of ``POST /v1/assess/batch`` (an unusable item gets its own problem inside).
 BATCH_RESPONSES = dict(_COMMON_RESPONSES)
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass
+from datetime import UTC, datetime
 from typing import Any
 
 import msgspec
@@ -23,12 +24,14 @@ from knotwork.codecs import (
     InvalidRequest,
     Limits,
     Origin,
+    Prepared,
     UnsupportedMediaType,
     decode_assess,
     decode_batch,
     decode_table_body,
     run,
 )
+from knotwork.report import CONTENT_SECURITY_POLICY, REPORT_MEDIA_TYPE
 from knotwork_contract import Assessment, Problem, ProblemDocument
 
 from ._context import current_request
@@ -36,16 +39,29 @@ from ._metrics import COMPUTE_SECONDS
 from ._openapi import (
     ASSESS_RESPONSES,
     BATCH_RESPONSES,
+    REPORT_RESPONSES,
     AssessOperation,
     BatchOperation,
+    ReportOperation,
     openapi_document,
 )
 from ._problems import ApiError, problem_of
 from ._work import WorkPool, read_body
 
-__all__ = ["BatchResponse", "Health", "Readiness", "assess", "assess_batch", "healthz", "readyz"]
+__all__ = [
+    "BatchResponse",
+    "Health",
+    "Readiness",
+    "assess",
+    "assess_batch",
+    "healthz",
+    "readyz",
+    "report",
+]
 
 JSON = "application/json"
+#: litestar adds the charset to a text type: the answer's type is REPORT_MEDIA_TYPE.
+HTML = REPORT_MEDIA_TYPE.split(";")[0]
 _TABLE_MEDIA = (ARROW_STREAM, ARROW_FILE, PARQUET)
 _PUBLIC = {"public": True}
 
@@ -122,13 +138,38 @@ SMALL_JSON_BYTES = 16 * 1024
 CHEAP_SECTIONS = frozenset({"variables", "terms", "dependencies"})
 
 
-def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> Assessment:
+def _prepare(body: bytearray, media: str, query: bytes, limits: Limits) -> Prepared:
     if media == JSON:
-        prepared = decode_assess(body, limits)
-    else:
-        prepared = decode_table_body(body, media, query, limits)
-    result: Assessment = run(prepared)
+        return decode_assess(body, limits)
+    return decode_table_body(body, media, query, limits)
+
+
+def _assess_one(body: bytearray, media: str, query: bytes, limits: Limits) -> Assessment:
+    result: Assessment = run(_prepare(body, media, query, limits))
     return result
+
+
+def _report_one(
+    body: bytearray, media: str, query: bytes, limits: Limits, made_at: datetime
+) -> bytes:
+    # Imported here: matplotlib loads with the first report, not with every worker.
+    from knotwork.report import render_report
+
+    # Every table, whatever ``detail`` says: the charts draw from them. The provenance is
+    # that of the JSON answer to the same request.
+    result: Assessment = run(_prepare(body, media, query, limits), full=True)
+    page: str = render_report(result, made_at)
+    return page.encode("utf-8")
+
+
+def _checked_media(request: Request[Any, Any, Any]) -> tuple[str, bytes]:
+    """The body's media type and the query string (which only a binary table may carry)."""
+    media = _media_type(request, (JSON, *_TABLE_MEDIA))
+    query: bytes = request.scope.get("query_string", b"")
+    if media == JSON and query:
+        reason = "a JSON body carries its options in the body; remove the query parameters"
+        raise InvalidRequest(reason, [Problem("/query", reason)])
+    return media, query
 
 
 def _assess_many(
@@ -194,11 +235,7 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
     body asking only for cheap sections (see ``SMALL_JSON_BYTES``).
     """
     state = request.app.state
-    media = _media_type(request, (JSON, *_TABLE_MEDIA))
-    query: bytes = request.scope.get("query_string", b"")
-    if media == JSON and query:
-        reason = "a JSON body carries its options in the body; remove the query parameters"
-        raise InvalidRequest(reason, [Problem("/query", reason)])
+    media, query = _checked_media(request)
     pool: WorkPool = state.pool
     body, ticket = await _admitted_body(request, pool)
     handed = False
@@ -228,6 +265,43 @@ async def assess(request: Request[Any, Any, Any]) -> Assessment:
             pool.release(ticket)
     _record("/v1/assess", queue_s, compute_s, encoding=media)
     return result
+
+
+@post(
+    "/v1/report",
+    operation_class=ReportOperation,
+    summary="Assess a design and answer with an HTML report",
+    operation_id="report",
+    description=(
+        "The same bodies, content types, options and limits as POST /v1/assess; the answer is "
+        "one self-contained HTML page (inline style sheet, charts as inline SVG, nothing "
+        "fetched) with the finding in words, the charts and tables of each section, warnings, "
+        "cautions and the provenance, printable on A4 and Letter. Errors are problem+json, as "
+        "on /v1/assess. Thresholds are rules of thumb; decisions on regulated models follow "
+        "local rules and qualified review."
+    ),
+    responses=REPORT_RESPONSES,
+    response_description="The report page.",
+    media_type=HTML,
+    status_code=200,
+    tags=["assessment"],
+)
+async def report(request: Request[Any, Any, Any]) -> Response[bytes]:
+    """Decode the body as for ``/v1/assess``, compute and draw the page on the bounded pool."""
+    state = request.app.state
+    media, query = _checked_media(request)
+    pool: WorkPool = state.pool
+    body, ticket = await _admitted_body(request, pool)
+    made_at = datetime.now(UTC)
+    page, queue_s, compute_s = await pool.run(
+        _report_one, body, media, query, state.limits, made_at, ticket=ticket
+    )
+    _record("/v1/report", queue_s, compute_s, encoding=media)
+    return Response(
+        page,
+        media_type=HTML,
+        headers={"Content-Security-Policy": CONTENT_SECURITY_POLICY},
+    )
 
 
 @post(

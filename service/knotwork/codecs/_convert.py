@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import msgspec
+
 from knotwork.core import (
     DesignRows,
     KnotworkError,
@@ -25,6 +27,7 @@ from knotwork_contract import Assessment, AssessOptions, Problem
 
 from ._errors import UnusableInput
 from ._prepared import CorrelationData, EstimatesData, Prepared, TableData
+from ._provenance import provenance
 
 __all__ = ["core_options", "run", "summarize", "summarize_with_rows"]
 
@@ -123,9 +126,9 @@ def summarize(prepared: Prepared) -> Summary:
     )
 
 
-def _compute(prepared: Prepared) -> Assessment:
+def _compute(prepared: Prepared) -> tuple[Summary, Assessment]:
     """The model rules first, then a GLM fit for a table under a non-gaussian family, or the
-    summary of the input as it is."""
+    summary of the input as it is; the summary the diagnostics ran on, and the answer."""
     options = core_options(prepared.options)
     data = prepared.data
     table = data if isinstance(data, TableData) else None
@@ -138,7 +141,7 @@ def _compute(prepared: Prepared) -> Assessment:
     )
     if table is None or options.family == "gaussian":
         summary, rows = summarize_with_rows(prepared)
-        return assess(summary, options, rows)
+        return summary, assess(summary, options, rows)
     assert table.response is not None  # check_model insists on it
     glm = summarize_glm(
         table.columns,
@@ -152,11 +155,16 @@ def _compute(prepared: Prepared) -> Assessment:
         intercept=options.intercept,
         missing=prepared.options.missing,
     )
-    return assess_glm(glm, options)
+    return glm.weighted, assess_glm(glm, options)
 
 
-def run(prepared: Prepared) -> Assessment:
+def run(prepared: Prepared, *, full: bool = False) -> Assessment:
     """Summarize and assess: the whole computation for one request, at the detail it asks.
+
+    The answer carries its provenance (the service version, the fingerprint of the summary
+    and options, the options in force) at every detail. ``full=True`` keeps every table
+    whatever the request's ``detail`` (the report draws from them); the provenance is the
+    same as that of the JSON answer to the same request.
 
     Raises
     ------
@@ -165,9 +173,10 @@ def run(prepared: Prepared) -> Assessment:
         pointers translated into the request the client sent (``prepared.origin``).
     """
     try:
-        result = _compute(prepared)
+        summary, result = _compute(prepared)
     except KnotworkError as exc:
         where = prepared.origin
         problems = [Problem(where.locate(exc.scope, p.pointer), p.reason) for p in exc.problems]
         raise UnusableInput(exc.message, problems, kind=exc.kind) from None
-    return result if prepared.options.detail == "full" else summary_detail(result)
+    result = msgspec.structs.replace(result, provenance=provenance(summary, prepared.options))
+    return result if full or prepared.options.detail == "full" else summary_detail(result)
