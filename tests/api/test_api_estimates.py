@@ -87,7 +87,7 @@ BAD = [
     ({"names": ["intercept", "a", "b", "c", "c"]}, 422, "invalid-input", "/input/names/4"),
     ({"names": ["intercept", "a", "b", "c", ""]}, 400, "invalid-request", "/input/names/4"),
     ({"n": 3}, 422, "too-few-data", "/input/n"),
-    ({"n": 0}, 400, "invalid-request", "/input/n"),
+    ({"n": 0}, 422, "invalid-input", "/input/n"),
     ({"terms": {"t": ["intercept", "sun_hours"]}}, 422, "invalid-input", "/input/terms/t/0"),
 ]
 

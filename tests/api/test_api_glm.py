@@ -449,16 +449,16 @@ BAD = [
     (
         _table(BOUGHT),
         {"family": "tweedie", "var_power": 1.0},
-        400,
-        "invalid-request",
+        422,
+        "invalid-option",
         "/options/var_power",
         "Expected `float` > 1.0",
     ),
     (
         _table(BOUGHT),
         {"family": "tweedie", "var_power": 2.0},
-        400,
-        "invalid-request",
+        422,
+        "invalid-option",
         "/options/var_power",
         "Expected `float` < 2.0",
     ),
@@ -565,7 +565,7 @@ def test_bad_input_in_a_binary_table_points_at_the_query(client) -> None:
         headers={"content-type": ARROW},
         params={"response": "y", "family": "tweedie", "var_power": "2.5"},
     )
-    assert_problem(r, 400, "invalid-request", "/query/var_power")
+    assert_problem(r, 422, "invalid-option", "/query/var_power")
 
 
 def test_normal_intervals_are_those_of_the_weighted_design(client) -> None:

@@ -167,23 +167,23 @@ MOMENTS = {
 }
 
 
-# A value outside the contract's bounds is a request that does not fit the schema (400, as
-# for every option bound); the bootstrap on an input without rows fits the schema but not the
-# input (422, as for every cross-input rule).
+# A number outside the contract's bounds is well-formed but unusable (422, as for every option
+# bound), as is the bootstrap on an input without rows (a cross-input rule); a wrong type or an
+# unknown name does not fit the schema (400).
 SCHEMA = (400, "invalid-request")
-CROSS = (422, "invalid-option")
+CROSS = RANGE = (422, "invalid-option")
 REPLICATES = "/options/uncertainty/replicates"
 
 
 @pytest.mark.parametrize(
     ("inp", "uncertainty", "answer", "pointer"),
     [
-        (None, {"level": 1.0}, SCHEMA, "/options/uncertainty/level"),
-        (None, {"level": 0}, SCHEMA, "/options/uncertainty/level"),
-        (None, {"replicates": REPLICATES_MIN - 1}, SCHEMA, REPLICATES),
-        (None, {"replicates": REPLICATES_MAX + 1}, SCHEMA, REPLICATES),
+        (None, {"level": 1.0}, RANGE, "/options/uncertainty/level"),
+        (None, {"level": 0}, RANGE, "/options/uncertainty/level"),
+        (None, {"replicates": REPLICATES_MIN - 1}, RANGE, REPLICATES),
+        (None, {"replicates": REPLICATES_MAX + 1}, RANGE, REPLICATES),
         (None, {"replicates": 500.0}, SCHEMA, REPLICATES),
-        (None, {"seed": -1}, SCHEMA, "/options/uncertainty/seed"),
+        (None, {"seed": -1}, RANGE, "/options/uncertainty/seed"),
         (None, {"method": "jackknife"}, SCHEMA, "/options/uncertainty/method"),
         (None, {"samples": 5}, SCHEMA, "/options/uncertainty/samples"),
         (CORRELATION, {"method": "bootstrap"}, CROSS, "/options/uncertainty/method"),

@@ -121,7 +121,7 @@ def test_the_same_request_draws_the_same_page() -> None:
 def test_errors_stay_problem_json(client: Any) -> None:
     cases = [
         (b'{"input": {', JSON, "", 400),
-        (msgspec.json.encode({**demo_body(), "options": {"threshold": 0.5}}), JSON, "", 400),
+        (msgspec.json.encode({**demo_body(), "options": {"threshold": 0.5}}), JSON, "", 422),
         (b"PAR1 not a table PAR1", PARQUET, "", 400),
         (b"a,b\n1,2\n", "text/csv", "", 415),
         (msgspec.json.encode(demo_body()), JSON, "threshold=4", 400),

@@ -12,14 +12,20 @@ Hierarchy::
     CodecError (ValueError)
     ├── MalformedBody          400  the body does not parse (JSON, Arrow IPC, Parquet)
     ├── InvalidRequest         400  it parses but does not fit the request schema
-    ├── UnusableInput          422  it fits the schema but its data cannot be used as given
+    ├── UnusableInput          422  it fits the schema but its data cannot be used as given,
+    │                               or a number is of the right type outside its range
+    │                               (:func:`schema_fault`)
     ├── TooLarge               413  beyond a configured limit (cells, columns, batch items)
     └── UnsupportedMediaType   415  a content type the route does not read
 """
 
 from __future__ import annotations
 
-from knotwork_contract import Problem
+import re
+
+import msgspec
+
+from knotwork_contract import Problem, msgspec_fault
 
 __all__ = [
     "CodecError",
@@ -28,7 +34,11 @@ __all__ = [
     "TooLarge",
     "UnsupportedMediaType",
     "UnusableInput",
+    "schema_fault",
 ]
+
+# msgspec's words for a number of the right type that breaks a declared bound.
+_OUT_OF_RANGE = re.compile(r"^Expected `(?:int|float)` (?:>=|<=|>|<) ")
 
 
 class CodecError(ValueError):
@@ -93,3 +103,30 @@ class UnsupportedMediaType(CodecError):
 
     kind = "unsupported-media-type"
     status = 415
+
+
+def schema_fault(
+    error: msgspec.ValidationError, prefix: str = "", *, where: str = "", label: str = ""
+) -> CodecError:
+    """The codec error for a document that does not fit the request schema.
+
+    A number of the right type outside its declared range (a threshold of 1, a level of 1.5,
+    100 replicates too few, a negative n) is well-formed but unusable: 422, ``invalid-option``
+    under ``options`` and ``invalid-input`` elsewhere. Anything else (a wrong type, an unknown
+    or missing field) is a request that does not fit the schema: 400 ``invalid-request``.
+
+    ``prefix`` is the pointer of the decoded document inside the request; ``where`` replaces
+    the pointer msgspec gives (a query parameter's ``/query/<name>``), and ``label`` starts the
+    message (``"query parameter <name>: "``). An option's pointer is ``/options/...`` after
+    ``prefix``, or ``/query/...`` for an option sent as a query parameter.
+    """
+    pointer, reason = msgspec_fault(error, prefix)
+    located = where or pointer
+    problems = [Problem(located, reason)]
+    if _OUT_OF_RANGE.match(reason) is None:
+        return InvalidRequest(label + reason, problems)
+    inner = pointer[len(prefix) :]
+    option = inner.startswith("/options/") or located.startswith("/query/")
+    return UnusableInput(
+        label + reason, problems, kind="invalid-option" if option else "invalid-input"
+    )

@@ -22,10 +22,9 @@ from knotwork_contract import (
     Problem,
     TableInput,
     join,
-    msgspec_fault,
 )
 
-from ._errors import InvalidRequest, MalformedBody, TooLarge
+from ._errors import InvalidRequest, MalformedBody, TooLarge, schema_fault
 from ._prepared import (
     CorrelationData,
     EstimatesData,
@@ -120,8 +119,7 @@ def _parse(decoder: msgspec.json.Decoder[Any], body: Buffer, prefix: str) -> Any
     try:
         return decoder.decode(body)
     except msgspec.ValidationError as exc:
-        pointer, reason = msgspec_fault(exc, prefix)
-        raise InvalidRequest(reason, [Problem(pointer, reason)]) from None
+        raise schema_fault(exc, prefix) from None
     except msgspec.DecodeError as exc:
         reason = f"the body is not valid JSON: {exc}"
         raise MalformedBody(reason, [Problem(prefix, reason)]) from None

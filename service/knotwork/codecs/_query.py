@@ -21,7 +21,7 @@ from knotwork_contract import (
     parse_query,
 )
 
-from ._errors import InvalidRequest
+from ._errors import InvalidRequest, schema_fault
 from ._prepared import Origin
 
 __all__ = ["options_from_query", "query_options"]
@@ -67,10 +67,8 @@ def query_options(query: str | bytes) -> tuple[AssessOptions, dict[str, str]]:
     try:
         options = msgspec.convert(document, AssessOptions)
     except msgspec.ValidationError as exc:
-        pointer, reason = msgspec_fault(exc)
+        pointer, _ = msgspec_fault(exc)
         where = Origin(query=True).locate("options", pointer)
         parameter = where.removeprefix("/query/")
-        raise InvalidRequest(
-            f"query parameter {parameter}: {reason}", [Problem(where, reason)]
-        ) from None
+        raise schema_fault(exc, where=where, label=f"query parameter {parameter}: ") from None
     return options, columns
