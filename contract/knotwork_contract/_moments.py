@@ -151,7 +151,9 @@ class PairwiseMoments(NamedTuple):
         matrix need not be positive semi-definite.
         """
         with np.errstate(divide="ignore", invalid="ignore"):
-            corr: np.ndarray = self.comoments / np.sqrt(self.squares * self.squares.T)
+            # The square roots first: the product of two large sums of squares can overflow.
+            root = np.sqrt(self.squares)
+            corr: np.ndarray = self.comoments / (root * root.T)
             return corr
 
 

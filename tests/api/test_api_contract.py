@@ -203,6 +203,15 @@ CASES = [
          ARROW, query="protect=zz&sections=variables,removal"),
     Case("arrow-limit-with-vif-threshold-rule", arrow(COLUMNS), 422, "invalid-option",
          "/query/components_limit", ARROW, query="components_limit=10"),
+    # Values whose squares overflow double precision, and n beyond the normal intervals' range.
+    Case("column-too-large-to-square", doc(table(columns={**COLUMNS, "b": [1e200, 2, 3, 4, 5,
+         6]})), 422, "invalid-input", "/input/columns/b"),
+    Case("pairwise-column-too-large", doc(table(columns={**COLUMNS, "c": [1e160, 2, None, 4, 5,
+         6]}), missing="pairwise"), 422, "invalid-input", "/input/columns/c"),
+    Case("variance-times-n-overflows", doc(moments(covariance=[[1e300, 0], [0, 1]], n=1e10)),
+         422, "invalid-input", "/input/covariance/0/0"),
+    Case("n-beyond-normal-intervals", doc(corr(n=1e200), uncertainty={"method": "normal"}), 422,
+         "invalid-option", "/options/uncertainty/method"),
     # Content types (415).
     Case("csv-content-type", b"a,b\n1,2\n", 415, "unsupported-media-type", "", "text/csv"),
     Case("no-content-type", doc(CORR), 415, "unsupported-media-type", "", None),

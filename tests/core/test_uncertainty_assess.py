@@ -260,3 +260,19 @@ def test_replicates_without_any_weighted_row_are_singular(rng: np.random.Generat
     result = bootstrap_intervals(x, ["a", "b"], weights=w, replicates=2000, seed=0)
     assert result.singular_replicates > 0
     assert result.usable_replicates + result.singular_replicates == 2000
+
+
+def test_bootstrap_of_rows_near_the_overflow_edge_matches_ordinary_units(
+    rng: np.random.Generator,
+) -> None:
+    # VIFs do not depend on the units; rows scaled to 1e153 (whose squares come within a
+    # factor ~100 of double precision's largest number) must give the intervals of the same rows
+    # in ordinary units with the same seed, to 1e-8 (roundings of the scaled sums only).
+    x = rng.normal(size=(120, 3))
+    x[:, 1] += 0.8 * x[:, 0]
+    names = ["a", "b", "c"]
+    plain = bootstrap_intervals(x, names, replicates=200, seed=4)
+    scaled = bootstrap_intervals(x * 1e153, names, replicates=200, seed=4)
+    for u, v in zip(plain.variables, scaled.variables, strict=True):
+        assert u.vif_interval is not None and v.vif_interval is not None
+        np.testing.assert_allclose(v.vif_interval, u.vif_interval, rtol=1e-8)

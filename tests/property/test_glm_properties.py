@@ -101,5 +101,8 @@ def test_answer_vifs_at_least_one_and_invariant_to_column_scales(model, scales) 
     moved = _answer(x * np.asarray(scales[: x.shape[1]]), y, family)
     vifs = np.array([v["vif"] for v in base])
     assert_allclose([v["vif"] for v in moved], vifs, rtol=1e-7 + 1e-12 * float(np.max(vifs)))
+    # The design VIFs need no fit, but the same rounding of R grows with them (eps x VIF:
+    # 1e-8 relative measured at a design VIF of 1e8).
     designs = [v["design_vif"] for v in base]
-    assert_allclose([v["design_vif"] for v in moved], designs, rtol=1e-9)
+    tol = 1e-9 + 1e-13 * float(np.max(designs))
+    assert_allclose([v["design_vif"] for v in moved], designs, rtol=tol)

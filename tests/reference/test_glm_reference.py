@@ -140,7 +140,7 @@ def test_weighted_vif_equals_vif_of_the_coefficient_covariance(name: str) -> Non
 
 def test_check_values_spector() -> None:
     # Check values computed with statsmodels 0.15 GLM (tol 1e-12) and recorded with six
-    # decimals in the project's method notes; the outside derivation is the test above.
+    # decimals in docs/numerics.md (the GLM check values); the outside derivation is the test above.
     case = CASES["spector"]
     fit = _ours(case)
     x = case.x.to_numpy()

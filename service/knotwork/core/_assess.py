@@ -44,6 +44,8 @@ from ._ridge import ridge_analysis
 from ._rows import DesignRows
 from ._significance import collinearity_tests
 from ._summary import INTERCEPT_NAME, Summary
+from ._uncertainty import MAX_N as NORMAL_MAX_N
+from ._uncertainty import MAX_N_REASON as TOO_MANY_FOR_NORMAL
 from ._uncertainty import bootstrap_intervals, normal_intervals
 
 #: Sample size beyond which the significance tests reject at any trace of collinearity; the
@@ -298,6 +300,13 @@ def _uncertainty_problems(
             )
         ]
     if unc.method != "bootstrap":
+        if summary.n > NORMAL_MAX_N:
+            return [
+                Problem(
+                    "/uncertainty/method",
+                    f"n = {summary.n:g}: {TOO_MANY_FOR_NORMAL}; leave uncertainty out",
+                )
+            ]
         return []
     if summary.input_kind != "table":
         article = "an" if summary.input_kind[:1] in "aeiou" else "a"

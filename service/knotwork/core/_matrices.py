@@ -126,7 +126,16 @@ def _moment_part(q: int, n: object, means: object, covariance: object, base: str
     if neg.size:
         j = int(neg[0])
         raise MatrixError.at(f"{base}/covariance/{j}/{j}", "variances cannot be negative")
-    return Moments(nval, m, cov * (nval - 1.0))
+    with np.errstate(over="ignore"):
+        com = cov * (nval - 1.0)
+    if not np.isfinite(com).all():
+        j = int(np.argmax(np.diag(cov)))
+        raise InputError.at(
+            f"{base}/covariance/{j}/{j}",
+            "this variance times n - 1 overflows double precision; rescale the variable, for "
+            "example to other units",
+        )
+    return Moments(nval, m, com)
 
 
 def _summary_from_comoments(

@@ -321,7 +321,11 @@ def _from_table(  # noqa: C901
         summary = _pairwise_summary(x, wk, names, response, tuple(terms), pointers, repair, notes)
         return summary, None
 
-    total, mean, com = comoments(design, w, keep, optimistic=optimistic, between_blocks=checkpoint)
+    with np.errstate(over="ignore", invalid="ignore"):  # refused just below, by column
+        total, mean, com = comoments(
+            design, w, keep, optimistic=optimistic, between_blocks=checkpoint
+        )
+    _refuse_overflow(np.diag(com), pointers)
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     design_rows = None
     if rows:
@@ -350,6 +354,23 @@ def _from_table(  # noqa: C901
     return summary, design_rows
 
 
+def _refuse_overflow(squares: np.ndarray, pointers: Sequence[str]) -> None:
+    """Refuse columns whose sum of squared deviations overflows double precision (values
+    beyond about 1e154), naming each; every other co-moment is then finite too (Cauchy-Schwarz).
+    """
+    bad = [pointers[int(j)] for j in np.flatnonzero(~np.isfinite(squares))]
+    if bad:
+        reason = (
+            "values this large overflow double precision when squared (about 1e154 and "
+            "beyond); rescale the column, for example to other units"
+        )
+        raise InputError(
+            f"{len(bad)} column(s) with values too large to square in double precision; "
+            "rescale them",
+            [Problem(ptr, reason) for ptr in bad],
+        )
+
+
 def _pairwise_summary(
     x: np.ndarray,
     w: np.ndarray | None,
@@ -362,7 +383,9 @@ def _pairwise_summary(
 ) -> Summary:
     """Correlations from pairwise-complete rows; no consistent moments exist then."""
     present = ~np.isnan(x)
-    moments = pairwise_comoments(x, w)
+    with np.errstate(over="ignore", invalid="ignore"):  # refused just below, by column
+        moments = pairwise_comoments(x, w)
+    _refuse_overflow(np.diag(moments.squares), pointers)
     var = moments.squares
     r = moments.correlation()
     # Row counts per pair. A float product runs in BLAS (an integer one does not: 100x slower

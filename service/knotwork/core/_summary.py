@@ -203,7 +203,8 @@ class Summary:
         p = self.p
         if self.comoments is not None and self.means is not None:
             var = np.diag(self.comoments) / max(self.n, 1.0)
-            constant = var <= (_CONSTANT_RTOL * np.abs(self.means)) ** 2
+            # Compared as a standard deviation: the square of a mean near 1e300 overflows.
+            constant = np.sqrt(var) <= _CONSTANT_RTOL * np.abs(self.means)
             if constant.any():
                 names = (*self.names, self.response) if self.response else self.names
                 problems = [

@@ -104,7 +104,7 @@ def check_symmetric(a: np.ndarray, pointer: str, scale: np.ndarray | None = None
             f"{pointer}/{i}/{j}",
             f"the matrix must be symmetric: entry [{i}][{j}] differs from [{j}][{i}]",
         )
-    symmetric: np.ndarray = (a + a.T) * 0.5
+    symmetric: np.ndarray = a * 0.5 + a.T * 0.5  # halves first: a sum near 1e308 overflows
     return symmetric
 
 
