@@ -299,14 +299,14 @@ def test_values_near_the_overflow_edge_give_the_vifs_of_the_rescaled_data(
     rng: np.random.Generator,
 ) -> None:
     # VIFs do not depend on the units (a property of R^2). Columns scaled to about 1e150 and
-    # 1e-150 square to within reach of double precision's limits (1.8e308, 2.2e-308); the VIFs
+    # 1e-140 square to within reach of double precision's limits (1.8e308, 2.2e-308); the VIFs
     # must match those of the same data in ordinary units, to 1e-10 (a few roundings of the
     # scaled sums, far below the statistical error). The unscaled VIFs are themselves checked
     # against statsmodels in test_weighted_vif_equals_statsmodels_wls's way.
     x = rng.normal(size=(80, 3))
     x[:, 2] += 0.9 * x[:, 0]
     plain = _vifs(from_table({"a": x[:, 0], "b": x[:, 1], "c": x[:, 2]}))
-    scaled = {"a": x[:, 0] * 1e150, "b": x[:, 1] * 1e-150, "c": x[:, 2] * 1e150 + 3e150}
+    scaled = {"a": x[:, 0] * 1e150, "b": x[:, 1] * 1e-140, "c": x[:, 2] * 1e150 + 3e150}
     assert_allclose(_vifs(from_table(scaled)), plain, rtol=1e-10)
     holes = {k: v.copy() for k, v in scaled.items()}
     holes["b"][5] = np.nan
@@ -319,3 +319,15 @@ def test_values_too_large_to_square_are_refused_by_name() -> None:
         from_table({"a": [1.0, 2.0, 3.0, 5.0], "b": [1e200, 2.0, 1.0, 4.0], "c": [1, 2, 2, 1]})
     assert [p.pointer for p in caught.value.problems] == ["/columns/b"]
     assert "overflow" in caught.value.problems[0].reason
+    # Deviations whose squares are subnormal numbers lose their digits; a constant column
+    # keeps its own message.
+    tiny = {"a": [1.0, 2.0, 3.0, 5.0], "b": [1e-160, 2e-160, 0.0, 4e-160], "c": [1, 2, 2, 1]}
+    with pytest.raises(InputError) as caught:
+        from_table(tiny)
+    assert [p.pointer for p in caught.value.problems] == ["/columns/b"]
+    assert "underflow" in caught.value.problems[0].reason
+    with pytest.raises(InputError, match="constant"):
+        from_table({**tiny, "b": [1e-160] * 4}).check()
+    with pytest.raises(InputError) as caught:
+        from_table({**tiny, "b": [1e-160, None, 0.0, 4e-160]}, missing="pairwise")
+    assert [p.pointer for p in caught.value.problems] == ["/columns/b"]

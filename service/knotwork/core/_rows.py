@@ -9,7 +9,7 @@ error.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -325,7 +325,8 @@ def _from_table(  # noqa: C901
         total, mean, com = comoments(
             design, w, keep, optimistic=optimistic, between_blocks=checkpoint
         )
-    _refuse_overflow(np.diag(com), pointers)
+    used_rows = keep if w is None else keep & (w > 0)
+    _refuse_unsquarable(np.diag(com), pointers, lambda j: design[j][used_rows])
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     design_rows = None
     if rows:
@@ -354,20 +355,45 @@ def _from_table(  # noqa: C901
     return summary, design_rows
 
 
-def _refuse_overflow(squares: np.ndarray, pointers: Sequence[str]) -> None:
-    """Refuse columns whose sum of squared deviations overflows double precision (values
-    beyond about 1e154), naming each; every other co-moment is then finite too (Cauchy-Schwarz).
+#: Below this sum of squared deviations (about 1e-292) the squares are subnormal numbers,
+#: which carry fewer digits: the correlations and the eigenvalues after them are unreliable.
+_SMALLEST_SQUARES = float(np.finfo(float).tiny / np.finfo(float).eps)
+
+
+def _refuse_unsquarable(
+    squares: np.ndarray, pointers: Sequence[str], column: Callable[[int], np.ndarray]
+) -> None:
+    """Refuse columns whose sum of squared deviations leaves double precision's range, naming
+    each: beyond it (values above about 1e154) every other co-moment of the column is refused
+    with it (Cauchy-Schwarz); below it (deviations of about 1e-147 and less, though not zero)
+    the squares lose their digits. ``column(j)`` gives column j's values as used (NaN allowed),
+    looked at only for columns whose sum is that small, to tell them from constant ones.
     """
-    bad = [pointers[int(j)] for j in np.flatnonzero(~np.isfinite(squares))]
-    if bad:
-        reason = (
+    problems = [
+        Problem(
+            pointers[int(j)],
             "values this large overflow double precision when squared (about 1e154 and "
-            "beyond); rescale the column, for example to other units"
+            "beyond); rescale the column, for example to other units",
         )
+        for j in np.flatnonzero(~np.isfinite(squares))
+    ]
+    for j in np.flatnonzero(squares < _SMALLEST_SQUARES):
+        values = column(int(j))
+        values = values[~np.isnan(values)]
+        if values.size and np.nanmax(values) > np.nanmin(values):
+            problems.append(
+                Problem(
+                    pointers[int(j)],
+                    "the values differ by so little that their squared deviations underflow "
+                    "double precision (a sum of squares below 1e-292); rescale the column, for "
+                    "example to other units",
+                )
+            )
+    if problems:
         raise InputError(
-            f"{len(bad)} column(s) with values too large to square in double precision; "
+            f"{len(problems)} column(s) whose values cannot be squared in double precision; "
             "rescale them",
-            [Problem(ptr, reason) for ptr in bad],
+            problems,
         )
 
 
@@ -385,7 +411,7 @@ def _pairwise_summary(
     present = ~np.isnan(x)
     with np.errstate(over="ignore", invalid="ignore"):  # refused just below, by column
         moments = pairwise_comoments(x, w)
-    _refuse_overflow(np.diag(moments.squares), pointers)
+    _refuse_unsquarable(np.diag(moments.squares), pointers, lambda j: x[:, j])
     var = moments.squares
     r = moments.correlation()
     # Row counts per pair. A float product runs in BLAS (an integer one does not: 100x slower
