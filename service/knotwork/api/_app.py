@@ -19,7 +19,7 @@ from ._auth import TokenGate
 from ._docs import assets_router, docs_router, render_plugins
 from ._examples import TABLE_COLUMNS, TABLE_EXAMPLE
 from ._logging import AccessLog
-from ._metrics import metrics, prometheus_config
+from ._metrics import metrics
 from ._problems import handle_exception
 from ._routes import assess, assess_batch, healthz, openapi_json, readyz, report
 from ._work import WorkPool
@@ -146,7 +146,6 @@ def create_app(settings: Settings | None = None) -> Litestar:
         # guard call (about 50 us a request), so an open service registers none.
         guards=[] if settings.open else [gate.guard],
         exception_handlers={Exception: handle_exception},
-        middleware=[prometheus_config().middleware],
         openapi_config=openapi_config,
         request_max_body_size=settings.max_body_bytes,
         logging_config=None,
@@ -155,6 +154,7 @@ def create_app(settings: Settings | None = None) -> Litestar:
         state=state,
         debug=False,
     )
-    # The access log wraps everything, routing errors included, so every request gets a line.
+    # The access log wraps everything, routing errors included, so every request gets a line
+    # and is counted in the request metrics.
     app.asgi_handler = AccessLog(app.asgi_handler)
     return app

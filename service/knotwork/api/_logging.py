@@ -7,7 +7,6 @@ of a body, so the client's data cannot reach a log.
 
 from __future__ import annotations
 
-import json
 import logging
 import re
 import sys
@@ -16,13 +15,16 @@ import uuid
 from datetime import UTC, datetime
 from typing import Any
 
+import msgspec
 from litestar.types import ASGIApp, Message, Receive, Scope, Send
 
 from ._context import RequestInfo, bind, unbind
+from ._metrics import in_progress, method_label, observe_request
 
 __all__ = ["AccessLog", "JsonFormatter", "configure_logging"]
 
 _access = logging.getLogger("knotwork.access")
+_ENCODER = msgspec.json.Encoder(enc_hook=str)
 # A client-chosen id is echoed only if it is short and plain; anything else gets a fresh one.
 _SAFE_ID = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
 
@@ -43,7 +45,8 @@ class JsonFormatter(logging.Formatter):
         if record.exc_info and record.exc_info[0] is not None:
             # The exception's type only: its message may quote data.
             entry["error_type"] = record.exc_info[0].__qualname__
-        return json.dumps(entry, default=str, separators=(",", ":"))
+        # msgspec: a third of json.dumps' time on an access line.
+        return _ENCODER.encode(entry).decode()
 
 
 def configure_logging(level: str = "info") -> None:
@@ -64,7 +67,8 @@ def configure_logging(level: str = "info") -> None:
 
 
 class AccessLog:
-    """ASGI wrapper: binds a request id, echoes it as ``X-Request-ID``, logs one line."""
+    """ASGI wrapper: binds a request id, echoes it as ``X-Request-ID``, logs one line and
+    records the request metrics (count, duration and in progress, by route template)."""
 
     def __init__(self, app: ASGIApp) -> None:
         self.app = app
@@ -100,20 +104,36 @@ class AccessLog:
                 sizes["out"] += len(message.get("body", b""))
             await send(message)
 
+        method = method_label(str(scope.get("method", "")))
+        gauge = in_progress(method)
+        gauge.inc()
         start = time.perf_counter()
         try:
             await self.app(scope, counting_receive, counting_send)
         finally:
+            seconds = time.perf_counter() - start
+            gauge.dec()
+            route = scope.get("path_template") or "(unmatched)"
+            # A request that ended before its answer started (the client left, or the server
+            # failed first) counts as 500.
+            observe_request(method, route, status or 500, seconds)
             fields: dict[str, Any] = {
                 "request_id": request_id,
-                "method": scope.get("method", ""),
-                "route": scope.get("path_template") or "(unmatched)",
+                "method": method,
+                "route": route,
                 "status": status,
                 "bytes_in": sizes["in"],
                 "bytes_out": sizes["out"],
-                "duration_ms": round((time.perf_counter() - start) * 1000, 3),
+                "duration_ms": round(seconds * 1000, 3),
             }
             fields.update({k: round(v, 3) for k, v in info.timings.items()})
             fields.update(info.fields)
-            _access.info("request", extra={"fields": fields})
+            if _access.isEnabledFor(logging.INFO):
+                # The record made directly: logger.info() would also walk the stack for the
+                # caller's file and line, which the line does not show.
+                record = _access.makeRecord(
+                    _access.name, logging.INFO, __file__, 0, "request", (), None,
+                    extra={"fields": fields},
+                )  # fmt: skip
+                _access.handle(record)
             unbind(token)
