@@ -234,15 +234,22 @@ def collinearity_tests(
 
     # The formula is symmetric; averaging removes rounding asymmetry of the inverse.
     partial = np.clip(0.5 * (partial + partial.T), -1.0, 1.0)
-    off = ~np.eye(p, dtype=bool) & ~np.isnan(partial) & (np.abs(partial) < 1.0)
+    # The upper triangle only, mirrored: ``partial`` is exactly symmetric, so the lower
+    # triangle would repeat the same operations on the same numbers (the same bits), and the
+    # t distribution's tail is most of the cost of this function.
+    rows, cols = np.triu_indices(p, 1)
+    upper = partial[rows, cols]
+    off = ~np.isnan(upper) & (np.abs(upper) < 1.0)
+    rows, cols, upper = rows[off], cols[off], upper[off]
     t_stat = np.full((p, p), np.nan)
     p_val = np.full((p, p), np.nan)
-    if partial_df > 0 and off.any():
-        r_off = partial[off]
-        t_stat[off] = r_off * math.sqrt(partial_df) / np.sqrt(1.0 - r_off * r_off)
+    if partial_df > 0 and upper.size:
+        t_upper = upper * math.sqrt(partial_df) / np.sqrt(1.0 - upper * upper)
         # One vectorized call: the survival function, never 1 - cdf (scipy.stats.t.sf(|t|) is
         # this same stdtr(df, -|t|)).
-        p_val[off] = 2.0 * scipy.special.stdtr(partial_df, -np.abs(t_stat[off]))
+        p_upper = 2.0 * scipy.special.stdtr(partial_df, -np.abs(t_upper))
+        t_stat[rows, cols] = t_stat[cols, rows] = t_upper
+        p_val[rows, cols] = p_val[cols, rows] = p_upper
     empty: tuple[tuple[float | None, ...], ...] = ()
     corr_rows = _rows_with_none(partial) if tables else empty
     t_rows = _rows_with_none(t_stat) if tables else empty
