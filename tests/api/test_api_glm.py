@@ -12,7 +12,6 @@ and the VIFs to far better than the 1e-6 checked.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -29,76 +28,13 @@ from bodies_and_problems import (
     assert_problem,
     parquet,
 )
+from glm_cases import CASES, SM_FIT
 from numpy.testing import assert_allclose
 from scipy.special import expit
 
 from knotwork_contract import parse_query
 
-SM_FIT = {"tol": 1e-13, "tol_criterion": "params", "maxiter": 500}
 VIF_SECTIONS = ["variables", "terms"]
-
-
-@dataclass(frozen=True)
-class Case:
-    x: pd.DataFrame
-    y: np.ndarray
-    family: str
-    var_power: float | None = None
-    trials: np.ndarray | None = None
-
-    def columns(self) -> dict[str, list[float]]:
-        cols = {str(c): self.x[c].astype(float).tolist() for c in self.x.columns}
-        cols["outcome"] = self.y.tolist()
-        if self.trials is not None:
-            cols["trials_n"] = self.trials.tolist()
-        return cols
-
-    def body(self, **options: Any) -> dict[str, Any]:
-        inp: dict[str, Any] = {"kind": "table", "columns": self.columns(), "response": "outcome"}
-        if self.trials is not None:
-            inp["trials"] = "trials_n"
-        opts: dict[str, Any] = {"family": self.family, **options}
-        if self.var_power is not None:
-            opts["var_power"] = self.var_power
-        return {"input": inp, "options": opts}
-
-    def statsmodels(self) -> Any:
-        log = sm.families.links.Log()
-        family = {
-            "binomial": sm.families.Binomial(),
-            "poisson": sm.families.Poisson(),
-            "gamma": sm.families.Gamma(link=log),
-            "tweedie": sm.families.Tweedie(var_power=self.var_power or 1.5, link=log),
-        }[self.family]
-        endog: Any = self.y
-        if self.trials is not None:  # statsmodels takes (successes, failures)
-            endog = np.column_stack([self.y * self.trials, (1.0 - self.y) * self.trials])
-        return sm.GLM(endog, sm.add_constant(self.x), family=family).fit(**SM_FIT)
-
-
-def _cases() -> dict[str, Case]:
-    spector = sm.datasets.spector.load_pandas()
-    randhie = sm.datasets.randhie.load_pandas()
-    scotland = sm.datasets.scotland.load_pandas()
-    fair = sm.datasets.fair.load_pandas()
-    star98 = sm.datasets.star98.load_pandas()
-    counts = star98.endog.to_numpy(dtype=float)
-    trials = counts.sum(axis=1)
-    return {
-        # GRADE (0/1) on GPA, TUCE, PSI: logit.
-        "spector": Case(spector.exog, spector.endog.to_numpy(dtype=float), "binomial"),
-        # mdvis (doctor visits) on nine insurance and health variables: poisson, log.
-        "randhie": Case(randhie.exog, randhie.endog.to_numpy(dtype=float), "poisson"),
-        # YES (percentage voting yes) on seven council variables: gamma, log link.
-        "scotland": Case(scotland.exog, scotland.endog.to_numpy(dtype=float), "gamma"),
-        # affairs (non-negative, mostly zeros) on eight variables: tweedie, v = 1.5, log link.
-        "fair": Case(fair.exog, fair.endog.to_numpy(dtype=float), "tweedie", var_power=1.5),
-        # NABOVE of NABOVE + NBELOW on twenty school variables: binomial with trials.
-        "star98": Case(star98.exog, counts[:, 0] / trials, "binomial", trials=trials),
-    }
-
-
-CASES = _cases()
 
 
 def _fox_monette(cov: np.ndarray) -> np.ndarray:
@@ -123,7 +59,7 @@ def test_weighted_vifs_equal_fox_monette_of_statsmodels_cov_params(client, name:
     # converted to a correlation matrix; Fox & Monette's VIF is the diagonal of its inverse.
     case = CASES[name]
     doc = _post(client, case.body(sections=VIF_SECTIONS))
-    theirs = case.statsmodels()
+    theirs = case.statsmodels_fit()
     expected = _fox_monette(np.asarray(theirs.cov_params())[1:, 1:])
     assert [v["name"] for v in doc["variables"]] == [str(c) for c in case.x.columns]
     assert_allclose([v["vif"] for v in doc["variables"]], expected, rtol=1e-6)

@@ -10,12 +10,11 @@ so that its own stopping error is far below the tolerances checked.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
+from glm_cases import CASES, SM_FIT, Case
 from numpy.testing import assert_allclose
 from statsmodels.stats.outliers_influence import variance_inflation_factor
 
@@ -23,57 +22,6 @@ from knotwork.core import Options, assess
 from knotwork.core._glm import design_summary, fit_glm, glm_summary, summarize_glm
 
 VIF_ONLY = Options(sections=["variables", "terms"])
-SM_FIT = {"tol": 1e-13, "tol_criterion": "params", "maxiter": 500}
-
-
-@dataclass(frozen=True)
-class Case:
-    x: pd.DataFrame
-    y: np.ndarray
-    family: str
-    var_power: float | None = None
-    trials: np.ndarray | None = None
-
-    def statsmodels_family(self) -> sm.families.Family:
-        log = sm.families.links.Log()
-        return {
-            "binomial": sm.families.Binomial(),
-            "poisson": sm.families.Poisson(),
-            "gamma": sm.families.Gamma(link=log),
-            "tweedie": sm.families.Tweedie(var_power=self.var_power or 1.5, link=log),
-            "gaussian": sm.families.Gaussian(),
-        }[self.family]
-
-    def statsmodels_endog(self) -> np.ndarray:
-        if self.trials is None:
-            return self.y
-        # statsmodels takes (successes, failures) for a binomial with trials.
-        return np.column_stack([self.y * self.trials, (1.0 - self.y) * self.trials])
-
-
-def _cases() -> dict[str, Case]:
-    spector = sm.datasets.spector.load_pandas()
-    randhie = sm.datasets.randhie.load_pandas()
-    scotland = sm.datasets.scotland.load_pandas()
-    fair = sm.datasets.fair.load_pandas()
-    star98 = sm.datasets.star98.load_pandas()
-    counts = star98.endog.to_numpy(dtype=float)
-    trials = counts.sum(axis=1)
-    return {
-        # GRADE (0/1) on GPA, TUCE, PSI: logit.
-        "spector": Case(spector.exog, spector.endog.to_numpy(dtype=float), "binomial"),
-        # mdvis (doctor visits, counts) on nine insurance and health variables: log.
-        "randhie": Case(randhie.exog, randhie.endog.to_numpy(dtype=float), "poisson"),
-        # YES (percentage voting yes, positive) on seven council variables: gamma, log link.
-        "scotland": Case(scotland.exog, scotland.endog.to_numpy(dtype=float), "gamma"),
-        # affairs (non-negative, 68% zeros) on eight variables: tweedie, v = 1.5, log link.
-        "fair": Case(fair.exog, fair.endog.to_numpy(dtype=float), "tweedie", var_power=1.5),
-        # NABOVE of NABOVE + NBELOW on twenty school variables: binomial with trials.
-        "star98": Case(star98.exog, counts[:, 0] / trials, "binomial", trials=trials),
-    }
-
-
-CASES = _cases()
 
 
 def _ours(case: Case):
@@ -88,10 +36,7 @@ def _ours(case: Case):
 
 
 def _theirs(case: Case, **kw):
-    model = sm.GLM(
-        case.statsmodels_endog(), sm.add_constant(case.x), family=case.statsmodels_family(), **kw
-    )
-    return model.fit(**SM_FIT)
+    return case.statsmodels_fit(**kw)
 
 
 def _vif_from_covariance(cov: np.ndarray) -> np.ndarray:

@@ -382,18 +382,6 @@ def _max_vif(doc: dict[str, Any]) -> tuple[float | None, str | None]:
 # --- running --------------------------------------------------------------------------------
 
 
-def _post_report(client: Client, payload: Any, target: Path) -> None:
-    response = client._send(
-        "POST",
-        "/v1/report",
-        content=payload.content,
-        content_type=payload.content_type,
-        params=payload.params,
-        accept="text/html, application/problem+json",
-    )
-    client._write(client._page(response), target)
-
-
 def _screen(client: Client, model: Model, pages: Path | None = None) -> Outcome:
     base: dict[str, Any] = {"model": model.name, "source": str(model.path)}
     page: str | None = None
@@ -408,7 +396,7 @@ def _screen(client: Client, model: Model, pages: Path | None = None) -> Outcome:
         if pages is not None and isinstance(doc, dict):
             # The same body again: the page is drawn from the same summary and options.
             page = f"{model.name}.html" if model.name != "index" else "index.model.html"
-            _post_report(client, payload, pages / page)
+            client._post_report(payload, pages / page)
     except Exception as exc:  # one bad model must not stop the batch; it is reported instead
         error: dict[str, Any] = {"kind": type(exc).__name__, "message": str(exc)}
         if isinstance(exc, ServiceError):

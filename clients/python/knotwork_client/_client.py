@@ -376,7 +376,9 @@ class Client(_BaseClient):
         (one self-contained HTML file: inline style, charts as inline SVG, nothing fetched) to
         ``path`` and returns that path. The service's errors raise as for :meth:`assess`.
         """
-        payload = self._assess_payload(data, dict(options))
+        return self._post_report(self._assess_payload(data, dict(options)), path)
+
+    def _post_report(self, payload: Payload, path: str | os.PathLike[str]) -> Path:
         response = self._send(
             "POST",
             "/v1/report",

@@ -160,6 +160,33 @@ def _legend_below(figure: Figure, ax: Axes) -> None:
     figure.legend(handles, labels, loc="outside lower center", ncols=max(1, len(labels)))
 
 
+def _log_scale_with_infinite(
+    ax: Axes,
+    top: float,
+    infinite: list[int],
+    infinite_label: str,
+    threshold: float,
+    threshold_label: str,
+    *,
+    markersize: float,
+) -> None:
+    """A log axis from 0.9 to ``top`` with the threshold line, and the infinite values (at
+    ``infinite`` on the x axis) as triangles near the top, where no finite value can be."""
+    if infinite:
+        ax.plot(
+            infinite,
+            [top / 1.6] * len(infinite),
+            "^",
+            color=BLACK,
+            markersize=markersize,
+            label=infinite_label,
+        )
+    _threshold_line(ax, threshold, threshold_label, vertical=False)
+    ax.set_yscale("log")
+    _plain_log(ax.yaxis)
+    ax.set_ylim(0.9, top)
+
+
 def _threshold_line(ax: Axes, value: float, label: str, *, vertical: bool) -> None:
     if vertical:
         ax.axvline(value, color=BLACK, linestyle="--", linewidth=1.0, label=label)
@@ -334,19 +361,15 @@ def conditioning_chart(conditioning: Any) -> Chart | None:
         markersize=4.5,
         label="above",
     )
-    if null:
-        left.plot(
-            null,
-            [top / 1.6] * len(null),
-            "^",
-            color=BLACK,
-            markersize=5,
-            label="null (exact dependency)",
-        )
-    _threshold_line(left, threshold, f"index {threshold:g} (rule of thumb)", vertical=False)
-    left.set_yscale("log")
-    _plain_log(left.yaxis)
-    left.set_ylim(0.9, top)
+    _log_scale_with_infinite(
+        left,
+        top,
+        null,
+        "null (exact dependency)",
+        threshold,
+        f"index {threshold:g} (rule of thumb)",
+        markersize=5,
+    )
     left.set_xlabel("component (largest eigenvalue first)")
     left.set_ylabel("condition index (log scale)")
     left.set_title("Condition indices", loc="left")
@@ -430,19 +453,15 @@ def removal_chart(removal: Any) -> Chart | None:
         linewidth=1.4,
         label="largest VIF left",
     )
-    if missing:
-        ax.plot(
-            missing,
-            [top / 1.6] * len(missing),
-            "^",
-            color=BLACK,
-            markersize=6,
-            label="exact dependency left (infinite)",
-        )
-    _threshold_line(ax, threshold, f"threshold {threshold:g} (rule of thumb)", vertical=False)
-    ax.set_yscale("log")
-    _plain_log(ax.yaxis)
-    ax.set_ylim(0.9, top)
+    _log_scale_with_infinite(
+        ax,
+        top,
+        missing,
+        "exact dependency left (infinite)",
+        threshold,
+        f"threshold {threshold:g} (rule of thumb)",
+        markersize=6,
+    )
     if len(steps) <= NAMED_STEPS:
         ax.set_xticks(
             xs,
