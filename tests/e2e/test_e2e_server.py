@@ -87,7 +87,9 @@ def test_saturation_answers_503_with_retry_after(tmp_path: Path) -> None:
 
 
 def test_sigterm_lets_the_request_in_flight_finish(tmp_path: Path) -> None:
-    batch = json.dumps({"items": [heavy_item(seed=s) for s in range(12)]})
+    # About 0.7 s of work here (p = 80): long enough that the polls below see it in flight
+    # on a busy machine (p = 40, a tenth of that, was once missed), far below the time limit.
+    batch = json.dumps({"items": [heavy_item(p=80, seed=s) for s in range(12)]})
     with serve(tmp_path) as server:
         result: dict[str, object] = {}
 
@@ -105,9 +107,11 @@ def test_sigterm_lets_the_request_in_flight_finish(tmp_path: Path) -> None:
         worker = threading.Thread(target=long_call)
         worker.start()
         deadline = time.monotonic() + 20
-        while httpx.get(server.url + "/readyz").json()["in_flight"] < 1:
-            assert time.monotonic() < deadline, "the long request never started"
-            time.sleep(0.01)
+        with httpx.Client(base_url=server.url) as poll:
+            while poll.get("/readyz").json()["in_flight"] < 1:
+                assert worker.is_alive(), f"the long request ended before the signal: {result}"
+                assert time.monotonic() < deadline, "the long request never started"
+                time.sleep(0.005)
         server.process.send_signal(signal.SIGTERM)
         worker.join(timeout=60)
         log = "\n".join(server.log_lines()[-20:])
