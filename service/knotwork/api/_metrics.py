@@ -80,15 +80,14 @@ _MEDIA_TYPE = CONTENT_TYPE_LATEST.split("; charset=")[0]
 #: Methods that get their own label value; any other (a client may send any token) counts as
 #: ``OTHER``, so no client can grow the number of series.
 _METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
+#: The labelled children, made once each: labels() builds and validates its key on every call.
 _series: dict[tuple[str, str, int], tuple[Any, Any]] = {}
+_progress: dict[str, Any] = {}
 
 
 def method_label(method: str) -> str:
     """The method as a label value: one of the usual methods, or ``OTHER``."""
     return method if method in _METHODS else "OTHER"
-
-
-_progress: dict[str, Any] = {}
 
 
 def in_progress(method: str) -> Any:
@@ -105,7 +104,6 @@ def observe_request(method: str, path: str, status: int, seconds: float) -> None
     key = (method, path, status)
     series = _series.get(key)
     if series is None:
-        # The children are cached: labels() builds and validates its key on every call.
         labels = (_APP, method, path, str(status))
         series = (REQUESTS.labels(*labels), REQUEST_SECONDS.labels(*labels))
         _series[key] = series

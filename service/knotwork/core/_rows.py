@@ -325,8 +325,9 @@ def _from_table(  # noqa: C901
         total, mean, com = comoments(
             design, w, keep, optimistic=optimistic, between_blocks=checkpoint
         )
-    used_rows = keep if w is None else keep & (w > 0)
-    _refuse_unsquarable(np.diag(com), pointers, lambda j: design[j][used_rows])
+    _refuse_unsquarable(
+        np.diag(com), pointers, lambda j: design[j][keep if w is None else keep & (w > 0)]
+    )
     used = int(keep.sum()) if w is None else int(np.count_nonzero(w[keep] > 0))
     design_rows = None
     if rows:
@@ -380,7 +381,7 @@ def _refuse_unsquarable(
     for j in np.flatnonzero(squares < _SMALLEST_SQUARES):
         values = column(int(j))
         values = values[~np.isnan(values)]
-        if values.size and np.nanmax(values) > np.nanmin(values):
+        if values.size and values.max() > values.min():
             problems.append(
                 Problem(
                     pointers[int(j)],
